@@ -1,0 +1,77 @@
+"""Model stage: pair potentials between two bodies.
+
+Both model builders (branch phases for superposed masses, the Hessian for trapped
+oscillators) take a sequence of pair potentials. A pair potential is central: it
+depends only on the centre-to-centre distance ``r`` [m] and returns energies in
+joules. Gravity is :class:`NewtonianGravity`; non-gravitational confounders
+(Casimir-Polder, Coulomb, dipole-dipole) implement the same interface.
+
+Interface (duck-typed, see :class:`PairPotential`):
+
+``label`` : str
+    short name used in reports (``"gravity"``, ``"casimir_polder"`` ...)
+``energy_j(r_m)`` : ndarray -> ndarray
+    U(r) [J]
+``radial_derivative(r_m, order)`` : ndarray, int -> ndarray
+    d^n U / dr^n [J/m^n] for order 1 and 2 (needed by the Hessian builder)
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Protocol, runtime_checkable
+
+import numpy as np
+from scipy.constants import G
+
+from gqsim.errors import ProtocolError
+
+__all__ = ["PairPotential", "NewtonianGravity"]
+
+
+@runtime_checkable
+class PairPotential(Protocol):
+    """What a model builder needs from a central pair potential."""
+
+    label: str
+
+    def energy_j(self, r_m: np.ndarray) -> np.ndarray: ...
+
+    def radial_derivative(self, r_m: np.ndarray, order: int) -> np.ndarray: ...
+
+
+@dataclass(frozen=True, kw_only=True)
+class NewtonianGravity:
+    """Newtonian attraction U(r) = -G m1 m2 / r.
+
+    Exact for non-overlapping homogeneous (or spherically layered) spheres by the
+    shell theorem (Book I Prop. 71 of [Newton1687]); ``G`` from scipy.constants.
+
+    Parameters
+    ----------
+    mass_a_kg, mass_b_kg : the two masses [kg]
+    """
+
+    mass_a_kg: float
+    mass_b_kg: float
+    label: str = "gravity"
+
+    def __post_init__(self):
+        for name in ("mass_a_kg", "mass_b_kg"):
+            value = getattr(self, name)
+            if not (np.isfinite(value) and value > 0):
+                raise ProtocolError(name, value, "must be a finite mass > 0 kg")
+
+    def energy_j(self, r_m):
+        """U(r) = -G m_a m_b / r [J]."""
+        return -G * self.mass_a_kg * self.mass_b_kg / np.asarray(r_m, dtype=float)
+
+    def radial_derivative(self, r_m, order: int):
+        """d^n U/dr^n = (-1)^(n+1) n! G m_a m_b / r^(n+1) [J/m^n]."""
+        r = np.asarray(r_m, dtype=float)
+        k = G * self.mass_a_kg * self.mass_b_kg
+        if order == 1:
+            return k / r**2
+        if order == 2:
+            return -2.0 * k / r**3
+        raise ValueError(f"order must be 1 or 2, got {order}")
