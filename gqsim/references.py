@@ -124,6 +124,8 @@ _ENTRIES = [
     Reference(key="CasimirPolder1948", authors="H. B. G. Casimir, D. Polder",
               title="The Influence of Retardation on the London-van der Waals Forces",
               journal="Phys. Rev. 73, 360", year=1948, identifier="doi:10.1103/PhysRev.73.360"),
+    Reference(key="Bertlmann2008", authors="R. A. Bertlmann, P. Krammer", title="Bloch vectors for qudits",
+              journal="J. Phys. A 41, 235303", year=2008, identifier="arXiv:0806.1174", from_memory=True),
     Reference(key="Guhne2009", authors="O. Gühne, G. Tóth", title="Entanglement detection",
               journal="Phys. Rep. 474, 1", year=2009, identifier="arXiv:0811.2803"),
     Reference(key="Jackson1999", authors="J. D. Jackson", title="Classical Electrodynamics (3rd ed.)",
