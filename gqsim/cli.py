@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import importlib
 import json
+import os
 import sys
 from pathlib import Path
 
@@ -32,6 +33,14 @@ class _OneLineErrors(click.Group):
         except GqsimError as exc:
             click.echo(f"gqsim: error: {exc}", err=True)
             ctx.exit(2)
+        except (click.exceptions.Exit, click.ClickException, click.exceptions.Abort):
+            raise
+        except Exception as exc:  # a bug, not a user mistake: keep it to one line unless debugging
+            if os.environ.get("GQSIM_DEBUG"):
+                raise
+            click.echo(f"gqsim: internal error: {type(exc).__name__}: {exc} "
+                       "(set GQSIM_DEBUG=1 for the traceback and please report it)", err=True)
+            ctx.exit(1)
 
 
 @click.group(cls=_OneLineErrors, context_settings={"help_option_names": ["-h", "--help"]})

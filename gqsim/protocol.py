@@ -62,7 +62,7 @@ class Protocol:
 def schema_for(family: str, version: int = SCHEMA_VERSION) -> dict:
     """Return the JSON schema of ``family`` at ``version`` (loaded from package data)."""
     name = f"{family}-v{version}.schema.json"
-    text = resources.files("gqsim").joinpath("schemas", name).read_text(encoding="utf-8")
+    text = resources.files("gqsim").joinpath("schemas").joinpath(name).read_text(encoding="utf-8")
     return json.loads(text)
 
 
