@@ -1,0 +1,435 @@
+"""Statistics stage: how many repetitions certify entanglement, when to measure, and a
+seeded Monte-Carlo of measurement records that checks the analytic counts.
+
+Stage: result -> witness design -> **statistics** -> report.
+
+Conventions
+-----------
+* A witness estimate is a sum over measurement settings s of the sample mean of a
+  per-shot value f_s with single-shot variance sigma_s^2 (see
+  :func:`gqsim.witness_design.setting_table`). With N_s kept shots of setting s,
+  Var(W_hat) = sum_s sigma_s^2 / N_s (independent settings; binomial/multinomial error
+  propagation, physics-references Sec. 6).
+* "Certify at k standard deviations" means margin >= k * sd(W_hat), with margin the
+  distance of the expected value from the separable bound on the entangled side. A
+  one-sided confidence level c maps to k = Phi^{-1}(c) (normal approximation; c = 0.999
+  gives k = 3.090). Optionally a *power* p asks that the experiment succeeds with
+  probability p, i.e. margin >= (Phi^{-1}(c) + Phi^{-1}(p)) * sd (common practice in
+  sample-size planning).
+* Equal split: the same N on every setting, N >= k^2 sum_s sigma_s^2 / margin^2; for two
+  +-1 correlators this is N >= k^2 (2 - <A>^2 - <B>^2)/(W - 1)^2 of physics-references
+  Sec. 6. Optimal split (minimum total for a given sd, Lagrange multiplier):
+  N_s proportional to sigma_s, N_total = k^2 (sum_s sigma_s)^2 / margin^2.
+* Undetected shots are discarded; repetitions = kept shots / (eta_a eta_b).
+* Lab time of a plan = N_total * (t + overhead), t the measurement (hold) time.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+from scipy import stats
+
+from gqsim.errors import PhysicsError, ProtocolError
+from gqsim.witness_design import SettingTable
+
+__all__ = [
+    "sigma_multiplier",
+    "repetitions_equal_split",
+    "repetitions_optimal_split",
+    "RepetitionPlan",
+    "plan_repetitions",
+    "lab_time",
+    "best_measurement_time",
+    "simulate_records",
+    "estimate_from_counts",
+    "MonteCarloCheck",
+    "monte_carlo_check",
+    "DuanPlan",
+    "duan_plan",
+    "sample_variance_sd",
+]
+
+
+def sigma_multiplier(confidence: float | None = None, *, sigmas: float | None = None,
+                     power: float | None = None) -> float:
+    """Number of standard deviations k required between the expected value and the bound.
+
+    Give either ``confidence`` (one-sided, in (0, 1): k = Phi^{-1}(confidence)) or
+    ``sigmas`` directly. With ``power`` in (0, 1) the result is k + Phi^{-1}(power): the
+    planned experiment then clears the threshold with probability ``power``
+    (normal approximation; common practice).
+    """
+    if (confidence is None) == (sigmas is None):
+        raise ProtocolError("confidence", confidence, "give exactly one of confidence (0 < c < 1) or sigmas (> 0)")
+    if confidence is not None:
+        if isinstance(confidence, bool) or not isinstance(confidence, (int, float)) \
+                or not (0.0 < confidence < 1.0) or not np.isfinite(confidence):
+            raise ProtocolError("confidence", confidence, "must be a one-sided confidence level strictly between 0 and 1")
+        k = float(stats.norm.ppf(confidence))
+        if k <= 0:
+            raise ProtocolError("confidence", confidence, "must exceed 0.5 to certify anything")
+    else:
+        if isinstance(sigmas, bool) or not isinstance(sigmas, (int, float)) or not (np.isfinite(sigmas) and sigmas > 0):
+            raise ProtocolError("sigmas", sigmas, "must be a positive number of standard deviations")
+        k = float(sigmas)
+    if power is not None:
+        if isinstance(power, bool) or not isinstance(power, (int, float)) or not (0.0 < power < 1.0):
+            raise ProtocolError("power", power, "must be a probability strictly between 0 and 1")
+        k += float(stats.norm.ppf(power))
+        if k <= 0:
+            raise ProtocolError("power", power, "is too low: confidence and power together need k > 0")
+    return k
+
+
+def _ceil_or_inf(x: np.ndarray) -> np.ndarray:
+    x = np.asarray(x, dtype=float)
+    out = np.full(x.shape, np.inf)
+    finite = np.isfinite(x)
+    # subtract a relative 1e-12 before ceil so that exact integers (up to round-off) are not bumped up
+    out[finite] = np.ceil(x[finite] * (1 - 1e-12))
+    return out
+
+
+def repetitions_equal_split(margin, variances, k: float, efficiency: float = 1.0) -> np.ndarray:
+    """Repetitions per setting when every setting gets the same number.
+
+    N >= k^2 sum_s sigma_s^2 / (margin^2 eta) (physics-references Sec. 6, binomial error
+    propagation). ``margin`` (...,), ``variances`` (..., S). Returns (...,) floats: whole
+    numbers, ``inf`` where margin <= 0 (the expected value is not on the entangled side).
+    """
+    margin = np.asarray(margin, dtype=float)
+    var = np.asarray(variances, dtype=float)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        n = np.where(margin > 0, k ** 2 * var.sum(axis=-1) / margin ** 2 / efficiency, np.inf)
+    return np.maximum(_ceil_or_inf(n), 1.0)
+
+
+def repetitions_optimal_split(margin, variances, k: float, efficiency: float = 1.0) -> np.ndarray:
+    """Repetitions per setting minimising the total for sd(W_hat) = margin / k.
+
+    Minimising sum_s N_s subject to sum_s sigma_s^2/N_s = (margin/k)^2 gives
+    N_s = k^2 sigma_s (sum_r sigma_r) / margin^2 (Lagrange multiplier; Neyman allocation in
+    stratified sampling, common practice), divided by the kept fraction eta. At least one
+    repetition per setting. Returns (..., S) floats, ``inf`` where margin <= 0.
+    """
+    margin = np.asarray(margin, dtype=float)
+    sd = np.sqrt(np.maximum(np.asarray(variances, dtype=float), 0.0))
+    with np.errstate(divide="ignore", invalid="ignore"):
+        n = np.where((margin > 0)[..., None], k ** 2 * sd * sd.sum(axis=-1, keepdims=True)
+                     / (margin[..., None] ** 2) / efficiency, np.inf)
+    return np.maximum(_ceil_or_inf(n), 1.0)
+
+
+def lab_time(total_repetitions, times_s, overhead_s: float) -> np.ndarray:
+    """Total lab time [s] = N_total * (t + overhead): each repetition holds for t [s]."""
+    _check_overhead(overhead_s)
+    return np.asarray(total_repetitions, dtype=float) * (np.asarray(times_s, dtype=float) + overhead_s)
+
+
+def _check_overhead(overhead_s: float) -> None:
+    if isinstance(overhead_s, bool) or not isinstance(overhead_s, (int, float)) \
+            or not (np.isfinite(overhead_s) and overhead_s >= 0):
+        raise ProtocolError("overhead_s", overhead_s, "must be a non-negative time per repetition [s]")
+
+
+def best_measurement_time(times_s, total_repetitions, overhead_s: float) -> tuple[int, float, float]:
+    """Index, time [s] and lab time [s] minimising N(t) * (t + overhead) over the grid.
+
+    Raises :class:`PhysicsError` when no time on the grid can certify (N infinite everywhere).
+    """
+    lt = lab_time(total_repetitions, times_s, overhead_s)
+    if not np.any(np.isfinite(lt)):
+        raise PhysicsError("measurement time", "any grid time",
+                           "the witness never clears its separable bound on this grid; nothing to certify")
+    i = int(np.nanargmin(np.where(np.isfinite(lt), lt, np.nan)))
+    return i, float(np.asarray(times_s)[i]), float(lt[i])
+
+
+@dataclass(frozen=True, kw_only=True)
+class RepetitionPlan:
+    """Repetitions needed to certify one witness at every time of a grid.
+
+    Arrays have leading length n_times; ``per_setting`` is (n_times, S) with the
+    optimal (or equal, per ``split``) split; totals include the detection-efficiency loss.
+    """
+
+    witness: str
+    times_s: np.ndarray
+    values: np.ndarray
+    bound: float
+    entangled_if: str
+    margin: np.ndarray
+    standard_deviation_one_shot: np.ndarray
+    settings: tuple[str, ...]
+    per_setting: np.ndarray
+    total: np.ndarray
+    sigmas: float
+    split: str
+    overhead_s: float
+    lab_time_s: np.ndarray
+
+    def best(self) -> dict:
+        """The time that minimises the total lab time, with its plan."""
+        i, t, lt = best_measurement_time(self.times_s, self.total, self.overhead_s)
+        return {"index": i, "time_s": t, "lab_time_s": lt, "value": float(self.values[i]),
+                "total_repetitions": float(self.total[i]),
+                "per_setting": dict(zip(self.settings, self.per_setting[i].tolist()))}
+
+
+def plan_repetitions(table: SettingTable, times_s=None, *, confidence: float | None = 0.999,
+                     sigmas: float | None = None, power: float | None = None, split: str = "optimal",
+                     overhead_s: float = 0.0) -> RepetitionPlan:
+    """Repetitions to certify ``table.witness`` on each state of ``table``.
+
+    The expected estimate is ``table.expected_values`` (equal to Tr(W rho) when readout
+    errors are corrected); the single-shot variances come from the outcome
+    probabilities. See the module docstring for the formulas and conventions.
+    """
+    if split not in ("optimal", "equal"):
+        raise ProtocolError("split", split, "must be 'optimal' or 'equal'")
+    k = sigma_multiplier(None if sigmas is not None else confidence, sigmas=sigmas, power=power)
+    _check_overhead(overhead_s)
+    values = table.expected_values
+    n = values.shape[0]
+    times = np.zeros(n) if times_s is None else np.asarray(times_s, dtype=float)
+    if times.shape != (n,):
+        raise ProtocolError("times_s", times.shape, f"must have one time per state ({n})")
+    margin = table.witness.margin(values)
+    var = table.setting_variances
+    eta = table.detection_efficiency
+    if split == "optimal":
+        per = repetitions_optimal_split(margin, var, k, eta)
+    else:
+        per = np.repeat(repetitions_equal_split(margin, var, k, eta)[:, None], var.shape[1], axis=1)
+    total = per.sum(axis=1)
+    one_shot = np.sqrt(np.maximum(var, 0.0))
+    return RepetitionPlan(witness=table.witness.name, times_s=times, values=values, bound=table.witness.bound,
+                          entangled_if=table.witness.entangled_if, margin=margin,
+                          standard_deviation_one_shot=one_shot, settings=tuple(s.label for s in table.settings),
+                          per_setting=per, total=total, sigmas=k, split=split, overhead_s=float(overhead_s),
+                          lab_time_s=lab_time(total, times, overhead_s))
+
+
+# --------------------------------------------------------------------------------------
+# Monte-Carlo of measurement records
+# --------------------------------------------------------------------------------------
+
+def simulate_records(table: SettingTable, shots, *, trials: int, seed: int, time_index: int = 0):
+    """Seeded synthetic measurement records: counts of each reported outcome per setting.
+
+    Each of the ``shots[s]`` repetitions of setting s is kept with probability eta
+    (binomial), and kept shots fall on the reported outcomes with the multinomial
+    probabilities of ``table`` at ``time_index``. Vectorised numpy; the same ``seed``
+    gives the same record.
+
+    Returns ``(kept, counts)`` with shapes (trials, S) and (trials, S, d_a d_b).
+    """
+    shots = np.asarray(shots)
+    n_settings = len(table.settings)
+    if shots.shape != (n_settings,) or not np.all(np.isfinite(shots)) or np.any(shots < 1):
+        raise ProtocolError("shots", shots, f"must be {n_settings} finite positive repetition counts, one per setting")
+    if not isinstance(trials, int) or trials < 1:
+        raise ProtocolError("trials", trials, "must be a positive integer")
+    rng = np.random.default_rng(seed)
+    shots = shots.astype(np.int64)
+    kept = rng.binomial(np.broadcast_to(shots, (trials, n_settings)), table.detection_efficiency)
+    p = table.probabilities[time_index]
+    p = p / p.sum(axis=-1, keepdims=True)
+    counts = rng.multinomial(kept, np.broadcast_to(p, (trials, *p.shape)))
+    return kept, counts
+
+
+def estimate_from_counts(table: SettingTable, kept, counts):
+    """Witness estimate and its estimated standard error from counts.
+
+    W_hat = constant + sum_s mean_s, se^2 = sum_s s_s^2 / n_s with s_s^2 the unbiased
+    sample variance of setting s's per-shot values. ``kept`` (..., S), ``counts``
+    (..., S, K). Settings with fewer than two kept shots give NaN-free but infinite se.
+    """
+    kept = np.asarray(kept, dtype=float)
+    counts = np.asarray(counts, dtype=float)
+    safe = np.maximum(kept, 1.0)
+    mean = np.einsum("...sk,sk->...s", counts, table.values) / safe
+    second = np.einsum("...sk,sk->...s", counts, table.values ** 2) / safe
+    var = np.maximum(second - mean ** 2, 0.0) * safe / np.maximum(safe - 1.0, 1.0)
+    with np.errstate(divide="ignore"):
+        se2 = np.where(kept >= 2, var / safe, np.inf).sum(axis=-1)
+    return table.constant + mean.sum(axis=-1), np.sqrt(se2)
+
+
+@dataclass(frozen=True, kw_only=True)
+class MonteCarloCheck:
+    """Outcome of :func:`monte_carlo_check` (all fractions over ``trials`` synthetic experiments)."""
+
+    trials: int
+    seed: int
+    expected_value: float
+    mean_estimate: float
+    analytic_sd: float
+    sample_sd: float
+    certified_fraction: float
+    predicted_certified_fraction: float
+    coverage: float
+    predicted_coverage: float
+
+    @property
+    def mean_tolerance(self) -> float:
+        """4 standard errors of the Monte-Carlo mean (a 4-sigma band fails ~6e-5 of the time)."""
+        return 4.0 * self.analytic_sd / np.sqrt(self.trials)
+
+    def fraction_tolerance(self, p: float) -> float:
+        """4 binomial standard errors of a fraction p estimated from ``trials`` trials."""
+        return 4.0 * np.sqrt(max(p * (1 - p), 1.0 / self.trials) / self.trials)
+
+    @property
+    def agrees(self) -> bool:
+        """True when mean, certification rate and coverage match the analytic values within 4 sigma."""
+        sd_tol = 4.0 * self.analytic_sd / np.sqrt(2.0 * (self.trials - 1))  # sd of a normal sample sd
+        return (abs(self.mean_estimate - self.expected_value) <= self.mean_tolerance
+                and abs(self.sample_sd - self.analytic_sd) <= sd_tol + 0.02 * self.analytic_sd
+                and abs(self.certified_fraction - self.predicted_certified_fraction)
+                <= self.fraction_tolerance(self.predicted_certified_fraction) + 0.02
+                and abs(self.coverage - self.predicted_coverage) <= self.fraction_tolerance(self.predicted_coverage))
+
+
+def monte_carlo_check(table: SettingTable, shots, *, sigmas: float, trials: int = 2000, seed: int = 0,
+                      time_index: int = 0) -> MonteCarloCheck:
+    """Run ``trials`` synthetic experiments with ``shots`` per setting and compare with the analytics.
+
+    Certified: the estimate lies beyond the bound by at least ``sigmas`` estimated standard
+    errors; the normal approximation predicts a rate Phi(margin/sd - k). Coverage: the
+    one-sided interval [W_hat - k se, inf) (or (-inf, W_hat + k se] for witnesses entangled
+    below) contains the expected value; predicted Phi(k).
+
+    The analytic sd uses the expected kept shots N_s eta; the 2 % slack in
+    :attr:`MonteCarloCheck.agrees` covers the O(1/N) terms the normal approximation omits.
+    """
+    kept, counts = simulate_records(table, shots, trials=trials, seed=seed, time_index=time_index)
+    est, se = estimate_from_counts(table, kept, counts)
+    expected = float(table.expected_values[time_index])
+    var = table.setting_variances[time_index]
+    sd = float(np.sqrt(np.sum(var / (np.asarray(shots, float) * table.detection_efficiency))))
+    w = table.witness
+    margin_hat = w.margin(est)
+    certified = np.mean(margin_hat >= sigmas * se)
+    if w.entangled_if == "above":
+        covered = np.mean(est - sigmas * se <= expected)
+    else:
+        covered = np.mean(est + sigmas * se >= expected)
+    margin = float(w.margin(expected))
+    return MonteCarloCheck(trials=trials, seed=seed, expected_value=expected, mean_estimate=float(est.mean()),
+                           analytic_sd=sd, sample_sd=float(est.std(ddof=1)), certified_fraction=float(certified),
+                           predicted_certified_fraction=float(stats.norm.cdf(margin / sd - sigmas)),
+                           coverage=float(covered), predicted_coverage=float(stats.norm.cdf(sigmas)))
+
+
+# --------------------------------------------------------------------------------------
+# Oscillators: Duan variance witness from sample variances
+# --------------------------------------------------------------------------------------
+
+def sample_variance_sd(variance, n) -> np.ndarray:
+    """Standard deviation of the unbiased sample variance of n Gaussian samples.
+
+    (n - 1) s^2 / sigma^2 follows chi^2 with n - 1 degrees of freedom [Cochran1934], whose
+    variance is 2 (n - 1), so sd(s^2) = sigma^2 sqrt(2 / (n - 1)).
+    """
+    n = np.asarray(n, dtype=float)
+    return np.asarray(variance, dtype=float) * np.sqrt(2.0 / (n - 1.0))
+
+
+@dataclass(frozen=True, kw_only=True)
+class DuanPlan:
+    """Repetitions to certify the Duan criterion from sample variances.
+
+    ``variance_u``/``variance_v`` include the readout imprecision; ``value`` =
+    Var(u) + Var(v) (measured), ``bound`` = a0^2 + 1/a0^2; ``per_setting`` is (n, 2)
+    for the settings (x1, x2) and (p1, p2).
+    """
+
+    times_s: np.ndarray
+    a0: np.ndarray
+    variance_u: np.ndarray
+    variance_v: np.ndarray
+    value: np.ndarray
+    bound: np.ndarray
+    margin: np.ndarray
+    per_setting: np.ndarray
+    total: np.ndarray
+    sigmas: float
+    overhead_s: float
+    lab_time_s: np.ndarray
+
+    def best(self) -> dict:
+        i, t, lt = best_measurement_time(self.times_s, self.total, self.overhead_s)
+        return {"index": i, "time_s": t, "lab_time_s": lt, "value": float(self.value[i]),
+                "bound": float(self.bound[i]), "total_repetitions": float(self.total[i])}
+
+
+def _duan_variances(cov: np.ndarray, a0: np.ndarray, noise_x: float, noise_p: float):
+    # cov[i, j] = <{dr_i, dr_j}>, r = (x1, p1, x2, p2), vacuum = identity: Var = cov/2.
+    s = np.sign(a0)
+    a = np.abs(a0)
+    var_u = (a ** 2 * (cov[..., 0, 0] / 2 + noise_x) + (cov[..., 2, 2] / 2 + noise_x) / a ** 2
+             + 2 * s * cov[..., 0, 2] / 2)
+    var_v = (a ** 2 * (cov[..., 1, 1] / 2 + noise_p) + (cov[..., 3, 3] / 2 + noise_p) / a ** 2
+             - 2 * s * cov[..., 1, 3] / 2)
+    return var_u, var_v
+
+
+def duan_plan(covariance, times_s=None, *, a0: float | None = None, imprecision_x: float = 0.0,
+              imprecision_p: float = 0.0, confidence: float | None = 0.999, sigmas: float | None = None,
+              power: float | None = None, overhead_s: float = 0.0) -> DuanPlan:
+    """Repetitions needed to show Var(u) + Var(v) < a0^2 + 1/a0^2 from sample variances.
+
+    u = |a0| x1 + x2/a0 and v = |a0| p1 - p2/a0 with x = (a + a^dag)/sqrt2, [x, p] = i; every
+    separable state has Var(u) + Var(v) >= a0^2 + 1/a0^2 (Eq. (2) of [Duan2000], equation
+    number from memory). ``covariance`` is (n, 4, 4) or (4, 4) in gqsim's convention
+    sigma_ij = <{dr_i, dr_j}> (vacuum = identity), r = (x1, p1, x2, p2). u is measured in
+    setting (x1, x2), v in (p1, p2); readout imprecision adds ``imprecision_x`` (variance of
+    the added noise on each x reading, in units where the vacuum has Var(x) = 1/2) to both
+    positions and ``imprecision_p`` to both momenta. ``a0 = None`` picks, at each time,
+    the a0 with the largest relative margin (grid search over |a0| in [0.1, 10], both signs).
+
+    Each sample variance has sd = Var sqrt(2/(N-1)) [Cochran1934]; minimising N_u + N_v at
+    fixed sd of the sum gives N_s - 1 proportional to Var_s, so
+    N_s = 1 + k^2 Var_s (Var_u + Var_v) 2 / margin^2.
+    """
+    cov = np.asarray(covariance, dtype=float)
+    if cov.shape[-2:] != (4, 4):
+        raise ProtocolError("covariance", cov.shape, "must be (4, 4) or (n, 4, 4), ordered (x1, p1, x2, p2)")
+    cov = cov.reshape(-1, 4, 4)
+    if not np.all(np.isfinite(cov)):
+        raise PhysicsError("covariance", "non-finite entries", "covariance matrices must be finite")
+    for key, val in (("imprecision_x", imprecision_x), ("imprecision_p", imprecision_p)):
+        if isinstance(val, bool) or not isinstance(val, (int, float)) or not (np.isfinite(val) and val >= 0):
+            raise ProtocolError(key, val, "must be a non-negative added variance (vacuum Var(x) = 1/2)")
+    k = sigma_multiplier(None if sigmas is not None else confidence, sigmas=sigmas, power=power)
+    _check_overhead(overhead_s)
+    n = cov.shape[0]
+    if a0 is None:
+        grid = np.concatenate([-np.geomspace(0.1, 10, 401), np.geomspace(0.1, 10, 401)])
+        vu, vv = _duan_variances(cov[:, None], grid[None, :], imprecision_x, imprecision_p)
+        bound = grid ** 2 + 1 / grid ** 2
+        rel = (bound - vu - vv) / (vu + vv)  # margin per unit sd scale: what sets N
+        a = grid[np.argmax(rel, axis=1)]
+    else:
+        if isinstance(a0, bool) or not isinstance(a0, (int, float)) or not np.isfinite(a0) or a0 == 0:
+            raise ProtocolError("a0", a0, "must be a finite non-zero real number")
+        a = np.full(n, float(a0))
+    var_u, var_v = _duan_variances(cov, a, imprecision_x, imprecision_p)
+    bound = a ** 2 + 1 / a ** 2
+    value = var_u + var_v
+    margin = bound - value
+    with np.errstate(divide="ignore", invalid="ignore"):
+        scale = np.where(margin > 0, 2 * k ** 2 * (var_u + var_v) / margin ** 2, np.inf)
+    per = np.stack([1 + scale * var_u, 1 + scale * var_v], axis=1)
+    per = np.maximum(_ceil_or_inf(per), 2.0)
+    total = per.sum(axis=1)
+    times = np.zeros(n) if times_s is None else np.asarray(times_s, dtype=float)
+    if times.shape != (n,):
+        raise ProtocolError("times_s", times.shape, f"must have one time per covariance matrix ({n})")
+    return DuanPlan(times_s=times, a0=a, variance_u=var_u, variance_v=var_v, value=value, bound=bound,
+                    margin=margin, per_setting=per, total=total, sigmas=k, overhead_s=float(overhead_s),
+                    lab_time_s=lab_time(total, times, overhead_s))
