@@ -83,6 +83,9 @@ __all__ = [
     "fragment",
     "with_interaction_keys",
     "potentials_from_tables",
+    "split_interaction_keys",
+    "validate_interaction_keys",
+    "superposition_budget",
 ]
 
 DEFAULT_SHARE_LIMIT = 0.1
@@ -952,3 +955,75 @@ def potentials_from_tables(interactions: Mapping[str, Any] | None, body_tables: 
             out.append(DipoleDipole(dipole_a_c_m=need(0, "dipole_c_m", name),
                                     dipole_b_c_m=need(1, "dipole_c_m", name)))
     return tuple(out)
+
+
+# ----------------------------------------------------------------------------- protocol -> attribution
+
+def split_interaction_keys(data: Mapping[str, Any]) -> tuple[dict, dict]:
+    """Split a protocol mapping into (family part, confounder part).
+
+    The confounder part holds ``interactions`` and, per body, the fragment's body keys;
+    the family part is everything else, for :func:`gqsim.protocol.parse_protocol`. Once the
+    family schemas include the fragment this split is harmless (the keys validate twice).
+    """
+    frag = fragment()
+    body_keys = set(frag["body_properties"])
+    family = json.loads(json.dumps(dict(data)))
+    extra: dict = {}
+    if "interactions" in family:
+        extra["interactions"] = family.pop("interactions")
+    bodies = family.get("bodies")
+    if isinstance(bodies, list):
+        extra["bodies"] = [{k: b.pop(k) for k in sorted(body_keys & set(b))} if isinstance(b, dict) else {}
+                           for b in bodies]
+    return family, extra
+
+
+def validate_interaction_keys(extra: Mapping[str, Any]) -> None:
+    """Validate the confounder part against the fragment; one-line ProtocolError on failure."""
+    import jsonschema
+
+    from gqsim.protocol import _to_protocol_error  # same error wording as every protocol key
+
+    frag = fragment()
+    schema = {"type": "object", "properties": {
+        **frag["top_level_properties"],
+        "bodies": {"type": "array", "items": {"type": "object", "properties": frag["body_properties"]}}}}
+    errors = list(jsonschema.Draft202012Validator(schema).iter_errors(dict(extra)))
+    if errors:
+        worst = max(errors, key=lambda e: len(e.absolute_path))
+        raise _to_protocol_error(worst)
+
+
+def superposition_budget(data: Mapping[str, Any], *, share_limit: float | None = None,
+                         source: str = "<memory>") -> Attribution:
+    """Attribution table of a superposition protocol (parsed TOML mapping) with an ``[interactions]`` table.
+
+    protocol (family keys validated by :func:`gqsim.protocol.parse_protocol`, confounder keys
+    by the fragment) -> setup (:func:`gqsim.setup.build_superposition_setup`) -> potentials
+    (:func:`potentials_from_tables`) -> :func:`superposition_attribution` over the whole
+    split-hold-recombine sequence. ``share_limit`` overrides ``interactions.share_limit``.
+    """
+    from gqsim.protocol import parse_protocol
+    from gqsim.setup import build_superposition_setup
+
+    family, extra = split_interaction_keys(data)
+    validate_interaction_keys(extra)
+    proto = parse_protocol(family, source=source)
+    if proto.family != "superposition":
+        raise ProtocolError("family", proto.family, "the force budget reads 'superposition' protocols "
+                                                    "(oscillators: call oscillator_attribution)")
+    setup = build_superposition_setup(proto)
+    interactions = extra.get("interactions")
+    tables = [dict(t) for t in data["bodies"]]
+    potentials = potentials_from_tables(interactions, tables, masses_kg=[b.mass_kg for b in setup.bodies],
+                                        radii_m=[b.radius_m for b in setup.bodies])
+    limit = share_limit if share_limit is not None else (interactions or {}).get("share_limit", DEFAULT_SHARE_LIMIT)
+    notes = []
+    if interactions and interactions.get("conducting_screen"):
+        dropped = [n for n in interactions["include"] if n in ELECTROMAGNETIC_LABELS]
+        notes.append("ideal conducting screen: " + (", ".join(dropped) or "no electromagnetic force")
+                     + " removed between the bodies; image terms are local and do not entangle")
+    t = setup.timing
+    return superposition_attribution(potentials, setup.bodies, hold_s=t.hold_s, split_s=t.split_s,
+                                     recombine_s=t.recombine_s, share_limit=limit, notes=notes)

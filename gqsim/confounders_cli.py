@@ -1,0 +1,75 @@
+"""``gqsim forces``: which forces make the entangling phase. Parses options, calls
+:mod:`gqsim.confounders`, prints. No physics here."""
+
+from __future__ import annotations
+
+import json
+import tomllib
+from pathlib import Path
+
+import click
+
+from gqsim.errors import ProtocolError
+
+__all__ = ["forces_group"]
+
+
+def _read_toml(path: Path) -> dict:
+    try:
+        return tomllib.loads(path.read_text(encoding="utf-8"))
+    except OSError as exc:
+        raise ProtocolError("protocol file", str(path), f"must be a readable file ({exc.strerror})") from None
+    except (UnicodeDecodeError, tomllib.TOMLDecodeError) as exc:
+        raise ProtocolError("protocol file", str(path), f"must be valid UTF-8 TOML ({exc})") from None
+
+
+@click.group("forces")
+def forces_group():
+    """Gravity next to the electromagnetic forces that could fake its entanglement."""
+
+
+@forces_group.command("budget")
+@click.argument("protocol", type=click.Path(dir_okay=False, path_type=Path))
+@click.option("--share-limit", type=float, default=None,
+              help="Flag non-gravitational shares above this fraction (default: the protocol's, else 0.1).")
+@click.option("--json", "as_json", is_flag=True, help="Print one JSON object instead of the table.")
+def budget_command(protocol: Path, share_limit: float | None, as_json: bool):
+    """Entangling phase, share and entanglement of each force in a superposition PROTOCOL.
+
+    Exit status 3 when a non-gravitational share exceeds the limit.
+    """
+    from gqsim.confounders import superposition_budget
+
+    table = superposition_budget(_read_toml(protocol), share_limit=share_limit, source=str(protocol))
+    click.echo(json.dumps(table.to_json_dict()) if as_json else table.as_text())
+    if table.flagged:
+        click.get_current_context().exit(3)
+
+
+@forces_group.command("safe-gap")
+@click.option("--material", default=None, help="Named material (gives density and permittivity).")
+@click.option("--relative-permittivity", type=float, default=None, help="Static relative permittivity.")
+@click.option("--density-kg-m3", type=float, default=None, help="Mass density [kg/m^3].")
+@click.option("--fraction", type=float, default=0.1, show_default=True,
+              help="Casimir-Polder allowed as this fraction of gravity.")
+def safe_gap_command(material: str | None, relative_permittivity: float | None, density_kg_m3: float | None,
+                     fraction: float):
+    """Separation below which Casimir-Polder exceeds FRACTION of gravity (equal homogeneous spheres).
+
+    The answer does not depend on the sphere radius.
+    """
+    from gqsim.confounders import casimir_polder_gravity_crossover_m
+    from gqsim.materials import material as lookup
+
+    eps, rho = relative_permittivity, density_kg_m3
+    if material is not None:
+        entry = lookup(material, "--material")
+        eps = entry.relative_permittivity if eps is None else eps
+        rho = entry.density_kg_m3 if rho is None else rho
+        if eps is None:
+            raise ProtocolError("--material", material, "is a conductor; give --relative-permittivity for a dielectric")
+    if eps is None or rho is None:
+        raise ProtocolError("--relative-permittivity/--density-kg-m3", None,
+                            "give --material, or both --relative-permittivity and --density-kg-m3")
+    gap = casimir_polder_gravity_crossover_m(relative_permittivity=eps, density_kg_m3=rho, fraction=fraction)
+    click.echo(f"casimir_polder_safe_gap_m: {gap:.6g}")
