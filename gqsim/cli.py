@@ -21,7 +21,9 @@ __all__ = ["main", "cli", "COMMAND_MODULES"]
 
 #: Extra sub-commands live next to the stage they drive; each entry is "module:attribute"
 #: naming a click command. Add a line here to register a new one.
-COMMAND_MODULES: tuple[str, ...] = ()
+COMMAND_MODULES: tuple[str, ...] = (
+    "gqsim.confounders_cli:forces_group",
+)
 
 
 class _OneLineErrors(click.Group):
