@@ -625,7 +625,8 @@ def entangling_phase_matrix_rad(phases_rad) -> np.ndarray:
     [Bose2017] (shared physics references §1.2) with L = branch 0, R = branch 1.
     """
     phi = np.asarray(phases_rad, dtype=float)
-    return phi[:, :1] + phi[:1, :] - phi[:1, :1] - phi
+    # grouped so that row and column 0 come out exactly zero
+    return (phi[:, :1] - phi[:1, :1]) - (phi - phi[:1, :])
 
 
 def pure_log_negativity_bits(amplitudes_a, amplitudes_b, phases_rad) -> float:
