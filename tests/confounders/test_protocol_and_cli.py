@@ -1,0 +1,136 @@
+"""Protocol fragment, table -> potentials, the bundled Hollowmere protocols and `gqsim forces`."""
+
+import json
+import math
+import tomllib
+from pathlib import Path
+
+import jsonschema
+import pytest
+from click.testing import CliRunner
+from scipy.constants import e
+
+from gqsim.cli import cli
+from gqsim.confounders import (
+    ChargeInducedDipole,
+    Coulomb,
+    DipoleDipole,
+    RetardedCasimirPolder,
+    potentials_from_tables,
+    superposition_budget,
+    with_interaction_keys,
+)
+from gqsim.errors import PhysicsError, ProtocolError
+from gqsim.potentials import NewtonianGravity
+from gqsim.protocol import schema_for
+
+PROTOCOLS = Path(__file__).resolve().parents[2] / "protocols" / "forces"
+QUOTED_6SF = 5e-6
+
+
+def load(name):
+    return tomllib.loads((PROTOCOLS / name).read_text(encoding="utf-8"))
+
+
+def test_fragment_merges_into_the_superposition_schema_and_validates_bundled_protocols():
+    schema = with_interaction_keys(schema_for("superposition"))
+    assert with_interaction_keys(schema) == schema  # idempotent
+    validator = jsonschema.Draft202012Validator(schema)
+    for name in ("casimir-budget-diamonds.toml", "casimir-screened-diamonds.toml",
+                 "charged-rehearsal-nanospheres.toml"):
+        assert not list(validator.iter_errors(load(name))), name
+    bad = load("charged-rehearsal-nanospheres.toml")
+    bad["bodies"][0]["relative_permittivity"] = -2.0
+    assert list(validator.iter_errors(bad))
+
+
+def test_tables_become_potentials_in_order_with_gravity_first():
+    bodies = [{"material": "diamond", "charge_c": e, "dipole_c_m": [1e-23, 0, 0]},
+              {"relative_permittivity": 3.8, "charge_c": -e, "dipole_c_m": [0, 1e-23, 0]}]
+    pots = potentials_from_tables(
+        {"include": ["coulomb", "casimir_polder", "gravity", "charge_induced_dipole", "dipole_dipole"]}, bodies,
+        masses_kg=[1e-14, 2e-14], radii_m=[1e-6, 1e-6])
+    assert [type(p) for p in pots] == [NewtonianGravity, Coulomb, RetardedCasimirPolder, ChargeInducedDipole,
+                                       DipoleDipole]
+    assert pots[1].charge_b_c == -e and pots[2].permittivity_a == 5.7 and pots[2].permittivity_b == 3.8
+    screened = potentials_from_tables({"include": ["gravity", "coulomb"], "conducting_screen": True}, bodies,
+                                      masses_kg=[1e-14, 2e-14], radii_m=[1e-6, 1e-6])
+    assert [p.label for p in screened] == ["gravity"]
+    assert [p.label for p in potentials_from_tables(None, bodies, masses_kg=[1.0, 1.0], radii_m=[None, None])] == [
+        "gravity"]
+
+
+@pytest.mark.parametrize("include, bodies, radii, error, words", [
+    (["dipole_dipole"], [{"dipole_c_m": [1e-23, 0, 0]}, {}], [1e-6, 1e-6], ProtocolError, "orientation"),
+    (["casimir_polder"], [{"material": "gold"}, {"material": "diamond"}], [1e-6, 1e-6], PhysicsError, "dielectric"),
+    (["casimir_polder"], [{}, {"material": "diamond"}], [1e-6, 1e-6], ProtocolError, "relative_permittivity"),
+    (["casimir_polder"], [{"material": "diamond"}, {"material": "diamond"}], [None, 1e-6], ProtocolError,
+     "radius_m"),
+    (["coulomb"], [{}, {}], [1e-6, 1e-6], ProtocolError, "charge_c"),
+    (["london_van_der_waals"], [{"material": "diamond"}, {"material": "diamond"}], [1e-6, 1e-6], ProtocolError,
+     "dispersion_resonance_rad_s"),
+])
+def test_missing_or_unsuitable_body_data_names_the_key(include, bodies, radii, error, words):
+    with pytest.raises(error) as info:
+        potentials_from_tables({"include": include}, bodies, masses_kg=[1e-14, 1e-14], radii_m=radii)
+    assert words in str(info.value) and "\n" not in str(info.value)
+
+
+def test_bundled_budget_reproduces_the_diamond_check_values():
+    # casimir-budget-diamonds: R = 1 um diamonds (m = 1.4703e-14 kg), in line, 450/250 um, 2.5 s:
+    # gravity theta = 0.678626 rad and E_N = 0.414503 ebit (shared references §1.3 [DERIVED]).
+    table = superposition_budget(load("casimir-budget-diamonds.toml"))
+    assert table.row("gravity").value == pytest.approx(0.678626, rel=QUOTED_6SF)
+    assert table.row("gravity").log_negativity == pytest.approx(0.414503, rel=QUOTED_6SF)
+    assert 0 < table.row("casimir_polder").share < 0.1 and not table.flagged
+
+
+def test_charged_rehearsal_is_coulomb_dominated_and_near_a_quarter_turn():
+    # Coulomb in line, span << d: theta ~ -(e^2/(4 pi eps0)) 2 dx^2 t/(hbar d^3) (Taylor expansion
+    # of 1/r; shared references §4.2 for the Coulomb energy) = -1.53 rad for 7 ms.
+    table = superposition_budget(load("charged-rehearsal-nanospheres.toml"))
+    from scipy.constants import epsilon_0, hbar
+    leading = -(e**2 / (4 * math.pi * epsilon_0)) * 2 * (20e-9) ** 2 * 7e-3 / (hbar * (200e-6) ** 3)
+    assert table.row("coulomb").value == pytest.approx(leading, rel=1e-6)  # next term O((dx/d)^2) = 1e-8
+    assert table.flagged and table.row("coulomb").exceeds_limit
+
+
+def test_screened_protocol_drops_casimir_polder_with_a_note():
+    table = superposition_budget(load("casimir-screened-diamonds.toml"))
+    assert [r.label for r in table.rows] == ["gravity", "all"]
+    assert any("screen" in n for n in table.notes)
+
+
+def test_budget_rejects_bad_fragment_values_in_one_line():
+    data = load("casimir-budget-diamonds.toml")
+    data["interactions"]["include"] = ["gravity", "magnetism"]
+    with pytest.raises(ProtocolError) as info:
+        superposition_budget(data)
+    assert "interactions.include" in str(info.value) and "\n" not in str(info.value)
+
+
+def test_cli_budget_table_json_flag_exit_and_errors(tmp_path):
+    runner = CliRunner()
+    ok = runner.invoke(cli, ["forces", "budget", str(PROTOCOLS / "casimir-budget-diamonds.toml")])
+    assert ok.exit_code == 0 and "casimir_polder" in ok.output and "within the limit" in ok.output
+    as_json = runner.invoke(cli, ["forces", "budget", "--json", str(PROTOCOLS / "casimir-budget-diamonds.toml")])
+    rows = {r["label"]: r for r in json.loads(as_json.output)["rows"]}
+    assert rows["gravity"]["value"] == pytest.approx(0.678626, rel=QUOTED_6SF)
+    tight = runner.invoke(cli, ["forces", "budget", "--share-limit", "0.01",
+                                str(PROTOCOLS / "casimir-budget-diamonds.toml")])
+    assert tight.exit_code == 3 and "OVER LIMIT" in tight.output
+    bad = tmp_path / "bad.toml"
+    data = (PROTOCOLS / "casimir-budget-diamonds.toml").read_text().replace('radius_m = 1e-6', 'radius_m = -1e-6', 1)
+    bad.write_text(data)
+    err = runner.invoke(cli, ["forces", "budget", str(bad)])
+    assert err.exit_code == 2 and err.output.count("\n") == 1 and "radius_m" in err.output
+
+
+def test_cli_safe_gap():
+    runner = CliRunner()
+    out = runner.invoke(cli, ["forces", "safe-gap", "--material", "diamond"])
+    # Shared references §4.1: 156.9 um for diamond at f = 0.1 (3510 kg/m^3 from gqsim's table).
+    assert out.exit_code == 0
+    assert float(out.output.strip().split()[-1]) == pytest.approx(156.9e-6, rel=5e-4)
+    gold = runner.invoke(cli, ["forces", "safe-gap", "--material", "gold"])
+    assert gold.exit_code == 2 and "conductor" in gold.output
