@@ -40,6 +40,7 @@ from functools import lru_cache
 import numpy as np
 
 from gqsim.errors import PhysicsError, ProtocolError
+from gqsim.measures import partial_transpose
 
 __all__ = [
     "ProductTerm",
@@ -328,14 +329,6 @@ def witness_from_operator(operator: np.ndarray, dims: tuple[int, int], *, bound:
                    entangled_if=entangled_if, source=source)
 
 
-def _partial_transpose_b(rho: np.ndarray, dims: tuple[int, int]) -> np.ndarray:
-    # Private stop-gap until gqsim.measures (the lead's module) provides the partial transpose.
-    da, db = dims
-    lead = rho.shape[:-2]
-    r = rho.reshape(*lead, da, db, da, db)
-    return np.swapaxes(r, -3, -1).reshape(*lead, da * db, da * db)
-
-
 def _check_state(rho: np.ndarray, dims: tuple[int, int]) -> np.ndarray:
     rho = np.asarray(rho, dtype=complex)
     dim = int(np.prod(dims))
@@ -360,10 +353,10 @@ def optimal_ppt_witness(rho: np.ndarray, dims: tuple[int, int]) -> Witness:
     rho = _check_state(rho, dims)
     if rho.ndim != 2:
         raise ProtocolError("state shape", rho.shape, "optimal_ppt_witness takes one (D, D) density matrix")
-    pt = _partial_transpose_b(0.5 * (rho + rho.conj().T), dims)
+    pt = partial_transpose(0.5 * (rho + rho.conj().T), dims, subsystem=1)
     _, vecs = np.linalg.eigh(pt)
     e = vecs[:, 0]
-    w = _partial_transpose_b(np.outer(e, e.conj()), dims)
+    w = partial_transpose(np.outer(e, e.conj()), dims, subsystem=1)
     return witness_from_operator(w, dims, bound=0.0, entangled_if="below", name="optimal_ppt",
                                  source="[Guhne2009] PPT witness")
 
