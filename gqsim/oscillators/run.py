@@ -1,0 +1,265 @@
+"""Run stage for trapped oscillators: protocol -> setup -> model -> channels -> engine -> Result.
+
+``build(protocol)`` validates the physics down to the model; ``simulate(protocol, engine=...)``
+returns a :class:`gqsim.result.Result` whose series are named as the trade spells them
+(``log_negativity`` in nats, ``simon``, ``simon_min_eigenvalue``, ``duan``, ``purity``,
+``mutual_information``, ``position_spread_m[<mode>]`` ...).
+"""
+
+from __future__ import annotations
+
+import itertools
+import math
+
+import numpy as np
+
+from gqsim.errors import PhysicsError, ProtocolError
+from gqsim.oscillators import analytic, measures
+from gqsim.oscillators.channels import OpenDynamics, build_channels
+from gqsim.oscillators.engines_gaussian import evolve_gaussian
+from gqsim.oscillators.model import OscillatorModel, build_model
+from gqsim.oscillators.setup import setup_from_protocol
+from gqsim.protocol import Protocol, load_protocol
+from gqsim.result import Provenance, Result, entangled_windows, package_versions
+
+__all__ = ["build", "simulate", "simulate_model", "UNITS"]
+
+#: units of every series this family reports (prefix match for per-mode series).
+UNITS = {
+    "log_negativity": "nats (natural log)",
+    "simon": "1 (Simon's invariant, V = sigma/2; < 0 means entangled)",
+    "simon_min_eigenvalue": "1 (vacuum units; < 0 means the partial transpose is unphysical)",
+    "duan": "1 (Var(u)+Var(v), vacuum variance 1/2; entangled when below duan_bound)",
+    "duan_bound": "1 (a^2 + 1/a^2)",
+    "duan_scaling": "1 (a)",
+    "duan_rotation_rad": "rad",
+    "purity": "1",
+    "mutual_information": "nats (natural log)",
+    "position_spread_m": "m",
+    "mean_displacement_m": "m",
+    "phonons": "1 (quanta of the preparation trap)",
+}
+
+#: E_N below this is reported as "not entangled" in windows: the Gaussian engine's rounding floor
+#: for unit-size covariances (a few float64 ulps of -ln(nu)).
+EN_FLOOR = 1e-13
+
+_OSC_ENGINES = ("auto", "gaussian", "fock")
+
+
+def _protocol(protocol) -> Protocol:
+    return protocol if isinstance(protocol, Protocol) else load_protocol(protocol)
+
+
+def build(protocol) -> OscillatorModel:
+    """Validate ``protocol`` (path or :class:`Protocol`) down to the model and return it."""
+    proto = _protocol(protocol)
+    if proto.family != "oscillators":
+        raise ProtocolError("family", proto.family, "gqsim.oscillators builds only family = \"oscillators\"")
+    model = build_model(setup_from_protocol(proto.data))
+    build_channels(model)  # validates the channel numbers too
+    return model
+
+
+def simulate(protocol, *, engine: str | None = None) -> Result:
+    """Simulate an oscillators protocol; ``engine`` is "gaussian", "fock", "auto" or None (protocol's)."""
+    proto = _protocol(protocol)
+    model = build(proto)
+    return simulate_model(model, engine=engine, protocol=proto)
+
+
+def _choose_engine(model: OscillatorModel, engine: str | None) -> str:
+    choice = engine or model.setup.solver.engine
+    if choice not in _OSC_ENGINES:
+        raise ProtocolError("engine", choice, f"oscillator protocols run with one of {list(_OSC_ENGINES)}")
+    if choice == "auto":
+        return "gaussian" if model.is_gaussian else "fock"
+    if choice == "gaussian" and not model.is_gaussian:
+        raise PhysicsError("engine", "gaussian", "this protocol has non-Gaussian parts (Fock/cat initial states or "
+                           "anharmonic_order > 2); use the fock engine")
+    return choice
+
+
+def simulate_model(model: OscillatorModel, *, engine: str | None = None, protocol: Protocol | None = None) -> Result:
+    """Run an already built model (notebook use) and return its :class:`Result`."""
+    choice = _choose_engine(model, engine)
+    dynamics = build_channels(model)
+    if choice == "gaussian":
+        traj = evolve_gaussian(model, dynamics)
+        series, summary = gaussian_series(model, traj.means, traj.covariances)
+        notes = ()
+    else:
+        from gqsim.oscillators.engines_fock import evolve_fock
+
+        fock = evolve_fock(model, dynamics)
+        series, summary = fock.series, dict(fock.summary)
+        notes = fock.notes
+    summary.update(_model_summary(model, dynamics))
+    summary.update(_entanglement_summary(model.setup.times_s, series))
+    summary["analytic"] = analytic_companions(model, series)
+    units = {name: _unit(name) for name in series}
+    prov = Provenance(protocol=protocol.data if protocol else {}, source=protocol.source if protocol else "<model>",
+                      engine=choice, options={"engine": choice, **_solver_options(model)},
+                      versions=package_versions())
+    return Result(times_s=model.setup.times_s, series=series, units=units, summary=summary, provenance=prov,
+                  family="oscillators", notes=tuple(notes))
+
+
+def _unit(name: str) -> str:
+    base = name.split("[")[0]
+    return UNITS.get(base, "1")
+
+
+def _solver_options(model: OscillatorModel) -> dict:
+    s = model.setup.solver
+    return {"fock_tolerance": s.fock_tolerance, "fock_max_cutoff": s.fock_max_cutoff,
+            "anharmonic_order": s.anharmonic_order, "conditional": s.conditional}
+
+
+def _sides(model: OscillatorModel) -> tuple[list[int], list[int]]:
+    side_a = [i for label in model.setup.side_a for i in model.body_modes(label)]
+    side_b = [i for i in range(model.n_modes) if i not in side_a]
+    return side_a, side_b
+
+
+def _pairs(model: OscillatorModel):
+    bodies = model.setup.bodies
+    return [(a.label, b.label) for a, b in itertools.combinations(bodies, 2)]
+
+
+def gaussian_series(model: OscillatorModel, means: np.ndarray, covs: np.ndarray) -> tuple[dict, dict]:
+    """Every reported series from means (n_t, 2n) and covariances (n_t, 2n, 2n) in scaled units."""
+    side_a, side_b = _sides(model)
+    both = side_a + side_b
+    series: dict[str, np.ndarray] = {}
+    reduced = measures.reduce(covs, both)
+    b_local = list(range(len(side_a), len(both)))
+    series["log_negativity"] = measures.log_negativity(reduced, b_local)
+    series["simon_min_eigenvalue"] = measures.simon_min_eigenvalue(reduced, b_local)
+    if len(side_a) == 1 and len(side_b) == 1:
+        series["simon"] = measures.simon_invariant(reduced)
+        duan = measures.duan_optimised(reduced)
+        series["duan"] = duan["value"]
+        series["duan_bound"] = duan["bound"]
+        series["duan_scaling"] = duan["scaling"]
+        series["duan_rotation_rad"] = duan["rotation_rad"]
+    series["purity"] = measures.purity(covs)
+    series["mutual_information"] = measures.mutual_information(covs, side_a, side_b)
+    if len(model.setup.bodies) > 2:
+        for la, lb in _pairs(model):
+            ma, mb = model.body_modes(la), model.body_modes(lb)
+            pair = measures.reduce(covs, ma + mb)
+            series[f"log_negativity[{la}|{lb}]"] = measures.log_negativity(pair, list(range(len(ma), len(ma) + len(mb))))
+    scales = model.scales
+    for i, name in enumerate(model.mode_names):
+        var = scales.position_variance_m2(covs[:, 2 * i, 2 * i], i)
+        series[f"position_spread_m[{name}]"] = np.sqrt(var)
+        series[f"mean_displacement_m[{name}]"] = means[:, 2 * i] * scales.length_m[i]
+        series[f"phonons[{name}]"] = ((covs[:, 2 * i, 2 * i] + covs[:, 2 * i + 1, 2 * i + 1]) / 4 - 0.5
+                                      + (means[:, 2 * i] ** 2 + means[:, 2 * i + 1] ** 2) / 2)
+    return series, {"final_covariance_scaled": covs[-1].tolist()}
+
+
+def _entanglement_summary(times: np.ndarray, series: dict) -> dict:
+    en = series["log_negativity"]
+    k = int(np.argmax(en))
+    out = {
+        "log_negativity_max": float(en[k]),
+        "log_negativity_max_time_s": float(times[k]),
+        "log_negativity_final": float(en[-1]),
+        "entangled_windows_s": [(w.start_s, w.stop_s) for w in entangled_windows(times, en > EN_FLOOR)],
+        "ever_entangled": bool(np.any(en > EN_FLOOR)),
+    }
+    if "duan" in series:
+        ratio = series["duan"] / series["duan_bound"]
+        j = int(np.argmin(ratio))
+        out["duan_best"] = {"time_s": float(times[j]), "value": float(series["duan"][j]),
+                            "bound": float(series["duan_bound"][j]), "scaling_a": float(series["duan_scaling"][j]),
+                            "rotation_rad": float(series["duan_rotation_rad"][j]),
+                            "combination": "u = a x1' + x2'/a, v = a p1' - p2'/a with local rotations summing to "
+                                           "-rotation_rad"}
+    return out
+
+
+def _model_summary(model: OscillatorModel, dynamics: OpenDynamics) -> dict:
+    names = model.mode_names
+    scales = model.scales
+    couplings = []
+    for i, j in itertools.combinations(range(model.n_modes), 2):
+        g = model.coupling_rad_s[i, j]
+        if g != 0:
+            couplings.append({"modes": f"{names[i]}-{names[j]}", "g_rad_s": float(g),
+                              "stiffness_n_per_m": float(model.pair_stiffness_n_per_m[i, j])})
+    shifts = {names[i]: float(model.pair_stiffness_n_per_m[i, i] / (2 * scales.mass_kg[i] * scales.omega_ref_rad_s[i]))
+              for i in range(model.n_modes)}
+    return {
+        "title": model.setup.title,
+        "modes": list(names),
+        "bipartition": f"{'+'.join(model.setup.side_a)} | rest",
+        "potentials": list(model.potentials),
+        "couplings": couplings,
+        "frequency_shifts_rad_s": shifts,
+        "static_displacement_m": {names[i]: float(model.static_displacement_m[i]) for i in range(model.n_modes)},
+        "zero_point_m": {names[i]: float(scales.zero_point_m[i]) for i in range(model.n_modes)},
+        "stages": [{"label": s.label, "duration_s": s.duration_s} for s in model.stages],
+        "channels": list(dynamics.labels),
+        "conventions": "x = (a + a^dag)/sqrt2, p = -i(a - a^dag)/sqrt2 of each preparation trap; "
+                       "sigma_jk = <{dr_j, dr_k}> (vacuum = identity); E_N in nats",
+    }
+
+
+def analytic_companions(model: OscillatorModel, series: dict) -> dict:
+    """Closed-form values next to the simulated ones with their ratio (two single-mode bodies).
+
+    Which formula applies is decided from the protocol: a trapped quench (every stage trapped
+    at the preparation frequency) gets the 2 lambda and thermal-threshold laws; a protocol whose
+    last stage is free gets the free-fall law. The ground-state value is printed as a reference.
+    """
+    bodies = model.setup.bodies
+    out: dict = {}
+    if len(bodies) != 2 or model.n_modes != 2:
+        out["note"] = "analytic companions are printed for two single-mode bodies only"
+        return out
+    a, b = bodies
+    d = float(np.linalg.norm(np.subtract(b.position_m, a.position_m)))
+    wa, wb = model.scales.omega_ref_rad_s
+    g = analytic.coupling_rate_rad_s(a.mass_kg, b.mass_kg, wa, wb, d)
+    g_model = abs(float(model.coupling_rad_s[0, 1]))
+    axial = math.isclose(g_model, g, rel_tol=1e-9)
+    out["coupling_g_rad_s"] = _pair(g, g_model, "2 G m1 m2 x_zpf1 x_zpf2 / (hbar d^3) (along the axis)",
+                                    "model Hessian coupling")
+    lam = g / math.sqrt(wa * wb)
+    out["lambda"] = float(lam)
+    en = series["log_negativity"]
+    times = model.setup.times_s
+    if axial and a.mass_kg == b.mass_kg and wa == wb:
+        out["ground_state_log_negativity"] = {"analytic": float(analytic.gravity_ground_state_log_negativity(lam)),
+                                              "formula": "-1/4 ln(1 - 4 lambda) = 1/2 ln(omega_+/omega_-)"}
+        trapped = all(np.allclose(2 * math.pi * np.asarray(s.trap_hz), [wa, wb]) and not s.inverted
+                      for s in model.setup.stages)
+        if trapped:
+            n0 = a.initial.occupation_at(wa)
+            r = a.initial.squeeze_r
+            if n0 == 0 and r == 0:
+                out["quench_max"] = _pair(2 * lam, float(en.max()), "2 lambda (E_N max over the run)",
+                                          "simulated E_N max")
+            if r == 0:
+                out["thermal_threshold_occupation"] = float(analytic.thermal_threshold_occupation(lam))
+                out["thermal_quench_max"] = _pair(float(analytic.thermal_quench_max(lam, n0)), float(en.max()),
+                                                  "max(0, 2 lambda - ln(1 + 2n))", "simulated E_N max")
+        last = model.setup.stages[-1]
+        if all(f == 0 for f in last.trap_hz) and len(model.setup.stages) >= 1:
+            t_free = times[-1] - model.stage_boundaries_s()[-2]
+            if t_free > 0 and a.initial.occupation_at(wa) == 0:
+                value = float(analytic.free_fall_log_negativity(a.mass_kg, wa, d, t_free, a.initial.squeeze_r))
+                en_before = float(np.interp(model.stage_boundaries_s()[-2], times, en))
+                out["free_fall"] = _pair(value, float(en[-1] - en_before),
+                                         "(2/3) e^{2r} (G m/d^3) omega0 t^3 over the last (free) stage",
+                                         "simulated E_N gained in the free stage")
+    return out
+
+
+def _pair(analytic_value: float, simulated: float, formula: str, against: str) -> dict:
+    ratio = simulated / analytic_value if analytic_value != 0 else float("nan")
+    return {"analytic": float(analytic_value), "simulated": float(simulated),
+            "ratio": ratio if math.isfinite(ratio) else None, "formula": formula, "simulated_is": against}
