@@ -3,7 +3,7 @@ how much of the entangling phase (or coupling) each one makes.
 
 Every class here implements the central pair-potential interface of
 :mod:`gqsim.potentials` (``label``, ``energy_j(r_m)``, ``radial_derivative(r_m, order)``
-for order 1 and 2), so both model builders can add it next to gravity:
+for order 1 and 2, here also 3 and 4 for the oscillators' anharmonic terms), so both model builders can add it next to gravity:
 
 ===========================  =======================  ==========================================
 class                        label                    U(r)
@@ -83,6 +83,7 @@ __all__ = [
     "fragment",
     "with_interaction_keys",
     "potentials_from_tables",
+    "potential_factory",
     "split_interaction_keys",
     "validate_interaction_keys",
     "superposition_budget",
@@ -137,14 +138,14 @@ def _separation(r_m) -> np.ndarray:
 
 
 def _power_law(coefficient: float, power: int, r: np.ndarray, order: int) -> np.ndarray:
-    """d^order/dr^order of coefficient * r**(-power), for order 0, 1, 2."""
-    if order == 0:
-        return coefficient * r ** (-power)
-    if order == 1:
-        return -power * coefficient * r ** (-power - 1)
-    if order == 2:
-        return power * (power + 1) * coefficient * r ** (-power - 2)
-    raise ValueError(f"order must be 1 or 2, got {order}")
+    """d^order/dr^order of coefficient * r**(-power) for order 0..4 (elementary calculus:
+    (-1)^k n (n+1) ... (n+k-1) r^-(n+k)). Orders 3 and 4 serve the oscillators' anharmonic terms."""
+    if isinstance(order, bool) or order not in (0, 1, 2, 3, 4):
+        raise ValueError(f"order must be 1, 2, 3 or 4, got {order}")
+    factor = 1.0
+    for k in range(order):
+        factor *= -(power + k)
+    return factor * coefficient * r ** (-power - order)
 
 
 def clausius_mossotti_factor(relative_permittivity: float | None, key: str = "relative_permittivity") -> float:
@@ -226,7 +227,7 @@ class RetardedCasimirPolder:
         return _power_law(-self.coefficient_j_m7, 7, _separation(r_m), 0)
 
     def radial_derivative(self, r_m, order: int):
-        """d^n U/dr^n of -C7 r^-7 [J/m^n], n = 1, 2."""
+        """d^n U/dr^n of -C7 r^-7 [J/m^n], n = 1..4."""
         return _power_law(-self.coefficient_j_m7, 7, _separation(r_m), order)
 
 
@@ -287,7 +288,7 @@ class LondonVanDerWaals:
         return _power_law(-self.coefficient_j_m6, 6, _separation(r_m), 0)
 
     def radial_derivative(self, r_m, order: int):
-        """d^n U/dr^n of -C6 r^-6 [J/m^n], n = 1, 2."""
+        """d^n U/dr^n of -C6 r^-6 [J/m^n], n = 1..4."""
         return _power_law(-self.coefficient_j_m6, 6, _separation(r_m), order)
 
 
@@ -322,7 +323,7 @@ class Coulomb:
         return _power_law(self.coefficient_j_m, 1, _separation(r_m), 0)
 
     def radial_derivative(self, r_m, order: int):
-        """d^n U/dr^n of k q_A q_B / r [J/m^n], n = 1, 2."""
+        """d^n U/dr^n of k q_A q_B / r [J/m^n], n = 1..4."""
         return _power_law(self.coefficient_j_m, 1, _separation(r_m), order)
 
 
@@ -369,7 +370,7 @@ class ChargeInducedDipole:
         return _power_law(-self.coefficient_j_m4, 4, _separation(r_m), 0)
 
     def radial_derivative(self, r_m, order: int):
-        """d^n U/dr^n of -C4 r^-4 [J/m^n], n = 1, 2."""
+        """d^n U/dr^n of -C4 r^-4 [J/m^n], n = 1..4."""
         return _power_law(-self.coefficient_j_m4, 4, _separation(r_m), order)
 
 
@@ -419,7 +420,7 @@ class DipoleDipole:
         return _power_law(self._along_axis_coefficient(), 3, _separation(r_m), 0)
 
     def radial_derivative(self, r_m, order: int):
-        """d^n U/dr^n along ``axis`` (orientation held fixed) [J/m^n], n = 1, 2."""
+        """d^n U/dr^n along ``axis`` (orientation held fixed) [J/m^n], n = 1..4."""
         return _power_law(self._along_axis_coefficient(), 3, _separation(r_m), order)
 
     def energy_from_vector_j(self, separation_m):
@@ -956,6 +957,40 @@ def potentials_from_tables(interactions: Mapping[str, Any] | None, body_tables: 
             out.append(DipoleDipole(dipole_a_c_m=need(0, "dipole_c_m", name),
                                     dipole_b_c_m=need(1, "dipole_c_m", name)))
     return tuple(out)
+
+
+_BODY_ATTRIBUTES = ("charge_c", "dipole_c_m", "relative_permittivity", "dispersion_resonance_rad_s", "material")
+
+
+def _body_table(body) -> dict:
+    """The fragment's body keys (and ``material``) of a mapping or a body object; None values dropped."""
+    get = body.get if isinstance(body, Mapping) else (lambda k, d=None: getattr(body, k, d))
+    return {k: get(k) for k in _BODY_ATTRIBUTES if get(k) is not None}
+
+
+def potential_factory(name: str):
+    """A factory (body_a, body_b) -> pair potential for the force ``name`` (a label in FORCE_LABELS).
+
+    For model builders that build potentials body pair by body pair (the oscillators'
+    ``POTENTIAL_FACTORIES``): the bodies may be mappings or objects; ``mass_kg`` and
+    ``radius_m`` are read from them, and the fragment's body keys (``charge_c``,
+    ``dipole_c_m``, ``relative_permittivity``, ``dispersion_resonance_rad_s``) plus
+    ``material`` when present. Errors are those of :func:`potentials_from_tables`.
+    """
+    if name not in FORCE_LABELS:
+        raise ProtocolError("interactions.include", name, f"must be among {list(FORCE_LABELS)}")
+
+    def make(body_a, body_b):
+        def read(body, key):
+            return body.get(key) if isinstance(body, Mapping) else getattr(body, key, None)
+
+        pots = potentials_from_tables({"include": [name]}, [_body_table(body_a), _body_table(body_b)],
+                                      masses_kg=[read(body_a, "mass_kg"), read(body_b, "mass_kg")],
+                                      radii_m=[read(body_a, "radius_m"), read(body_b, "radius_m")])
+        return pots[0]
+
+    make.__name__ = f"{name}_between"
+    return make
 
 
 # ----------------------------------------------------------------------------- protocol -> attribution

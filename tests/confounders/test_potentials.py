@@ -212,7 +212,17 @@ def test_radial_derivatives_match_finite_differences_of_the_energy(pot):
     # The second difference loses ~ eps/(h/r)^2 = 1e-8 to cancellation: still far below FD_RTOL.
     np.testing.assert_allclose(pot.radial_derivative(r, 2), second, rtol=FD_RTOL)
     with pytest.raises(ValueError, match="order"):
-        pot.radial_derivative(r, 3)
+        pot.radial_derivative(r, 5)
+
+
+@pytest.mark.parametrize("pot", RADIAL_POTENTIALS[1:], ids=lambda p: p.label)
+def test_third_and_fourth_derivatives_match_differences_of_the_lower_ones(pot):
+    # Orders 3 and 4 (for the oscillators' anharmonic terms) by central differences of orders 2 and 3.
+    r = np.array([30e-6, 200e-6, 1.5e-3])
+    h = 1e-4 * r
+    for order in (3, 4):
+        fd = (pot.radial_derivative(r + h, order - 1) - pot.radial_derivative(r - h, order - 1)) / (2 * h)
+        np.testing.assert_allclose(pot.radial_derivative(r, order), fd, rtol=FD_RTOL)
 
 
 def _fd_hessian(pot, vec, rel=1e-4):

@@ -134,3 +134,21 @@ def test_cli_safe_gap():
     assert float(out.output.strip().split()[-1]) == pytest.approx(156.9e-6, rel=5e-4)
     gold = runner.invoke(cli, ["forces", "safe-gap", "--material", "gold"])
     assert gold.exit_code == 2 and "conductor" in gold.output
+
+
+def test_factory_for_pairwise_model_builders_reads_body_objects():
+    from types import SimpleNamespace
+
+    from gqsim.confounders import potential_factory
+
+    a = SimpleNamespace(mass_kg=1e-14, radius_m=1e-6, material="diamond", charge_c=e)
+    b = SimpleNamespace(mass_kg=2e-14, radius_m=2e-6, material="silica", charge_c=-e)
+    coulomb = potential_factory("coulomb")(a, b)
+    assert isinstance(coulomb, Coulomb) and coulomb.charge_b_c == -e
+    cp = potential_factory("casimir_polder")(a, b)
+    assert (cp.permittivity_a, cp.permittivity_b, cp.radius_b_m) == (5.7, 3.8, 2e-6)
+    assert potential_factory("gravity")({"mass_kg": 1.0}, {"mass_kg": 2.0}).mass_b_kg == 2.0
+    with pytest.raises(ProtocolError, match="orientation"):
+        potential_factory("dipole_dipole")(a, b)
+    with pytest.raises(ProtocolError, match="interactions.include"):
+        potential_factory("magnetism")
