@@ -389,11 +389,12 @@ class DuanPlan:
 
     ``variance_u``/``variance_v`` include the readout imprecision; ``value`` =
     Var(u) + Var(v) (measured), ``bound`` = a0^2 + 1/a0^2; ``per_setting`` is (n, 2)
-    for the settings (x1, x2) and (p1, p2).
+    for the settings (x1, x2') and (p1, p2'), x2' and p2' rotated by ``rotation_rad``.
     """
 
     times_s: np.ndarray
     a0: np.ndarray
+    rotation_rad: np.ndarray
     variance_u: np.ndarray
     variance_v: np.ndarray
     value: np.ndarray
@@ -422,23 +423,36 @@ def _duan_variances(cov: np.ndarray, a0: np.ndarray, noise_x: float, noise_p: fl
     return var_u, var_v
 
 
+def _rotate_second_mode(cov: np.ndarray, phi: np.ndarray) -> np.ndarray:
+    # x2' = x2 cos phi + p2 sin phi, p2' = -x2 sin phi + p2 cos phi (a local phase rotation).
+    c, s = np.cos(phi), np.sin(phi)
+    rot = np.zeros(cov.shape)
+    rot[:, 0, 0] = rot[:, 1, 1] = 1.0
+    rot[:, 2, 2], rot[:, 2, 3], rot[:, 3, 2], rot[:, 3, 3] = c, s, -s, c
+    return rot @ cov @ rot.transpose(0, 2, 1)
+
+
 def duan_plan(covariance, times_s=None, *, a0: float | None = None, imprecision_x: float = 0.0,
               imprecision_p: float = 0.0, confidence: float | None = 0.999, sigmas: float | None = None,
               power: float | None = None, overhead_s: float = 0.0) -> DuanPlan:
     """Repetitions needed to show Var(u) + Var(v) < a0^2 + 1/a0^2 from sample variances.
 
     u = |a0| x1 + x2/a0 and v = |a0| p1 - p2/a0 with x = (a + a^dag)/sqrt2, [x, p] = i; every
-    separable state has Var(u) + Var(v) >= a0^2 + 1/a0^2 (Eq. (2) of [Duan2000], equation
-    number from memory). ``covariance`` is (n, 4, 4) or (4, 4) in gqsim's convention
+    separable state has Var(u) + Var(v) >= a0^2 + 1/a0^2 ([Duan2000]; physics-references
+    Sec. 5.3). ``covariance`` is (n, 4, 4) or (4, 4) in gqsim's convention
     sigma_ij = <{dr_i, dr_j}> (vacuum = identity), r = (x1, p1, x2, p2). u is measured in
     setting (x1, x2), v in (p1, p2); readout imprecision adds ``imprecision_x`` (variance of
-    the added noise on each x reading, in units where the vacuum has Var(x) = 1/2) to both
-    positions and ``imprecision_p`` to both momenta. ``a0 = None`` picks, at each time,
-    the a0 with the largest relative margin (grid search over |a0| in [0.1, 10], both signs).
+    the noise added to each x reading, in units where the vacuum has Var(x) = 1/2) to both
+    positions and ``imprecision_p`` to both momenta.
+
+    ``a0`` given: lab quadratures, that a0. ``a0 = None``: at each time the second mode's
+    quadratures are rotated by the angle that makes the cross term 2[Cov(x1, x2') - Cov(p1, p2')]
+    most negative (closed form; a local rotation keeps the criterion valid), then a0 > 0 is
+    chosen on a grid over [0.1, 10] to minimise the repetitions; the angle is in ``rotation_rad``.
 
     Each sample variance has sd = Var sqrt(2/(N-1)) [Cochran1934]; minimising N_u + N_v at
     fixed sd of the sum gives N_s - 1 proportional to Var_s, so
-    N_s = 1 + k^2 Var_s (Var_u + Var_v) 2 / margin^2.
+    N_s = 1 + 2 k^2 Var_s (Var_u + Var_v) / margin^2.
     """
     cov = np.asarray(covariance, dtype=float)
     if cov.shape[-2:] != (4, 4):
@@ -453,15 +467,21 @@ def duan_plan(covariance, times_s=None, *, a0: float | None = None, imprecision_
     _check_overhead(overhead_s)
     n = cov.shape[0]
     if a0 is None:
-        grid = np.concatenate([-np.geomspace(0.1, 10, 401), np.geomspace(0.1, 10, 401)])
+        # Cov = sigma/2; cross(phi) = cos(phi) (C_xx - C_pp) + sin(phi) (C_xp + C_px), times 2.
+        c_xx_pp = (cov[:, 0, 2] - cov[:, 1, 3]) / 2
+        c_xp_px = (cov[:, 0, 3] + cov[:, 1, 2]) / 2
+        phi = np.arctan2(-c_xp_px, -c_xx_pp)
+        cov = _rotate_second_mode(cov, phi)
+        grid = np.geomspace(0.1, 10, 801)
         vu, vv = _duan_variances(cov[:, None], grid[None, :], imprecision_x, imprecision_p)
         bound = grid ** 2 + 1 / grid ** 2
-        rel = (bound - vu - vv) / (vu + vv)  # margin per unit sd scale: what sets N
+        rel = (bound - vu - vv) / (vu + vv)  # N_total ~ 2 k^2 (Var_u + Var_v)^2 / margin^2
         a = grid[np.argmax(rel, axis=1)]
     else:
         if isinstance(a0, bool) or not isinstance(a0, (int, float)) or not np.isfinite(a0) or a0 == 0:
             raise ProtocolError("a0", a0, "must be a finite non-zero real number")
         a = np.full(n, float(a0))
+        phi = np.zeros(n)
     var_u, var_v = _duan_variances(cov, a, imprecision_x, imprecision_p)
     bound = a ** 2 + 1 / a ** 2
     value = var_u + var_v
@@ -474,6 +494,6 @@ def duan_plan(covariance, times_s=None, *, a0: float | None = None, imprecision_
     times = np.zeros(n) if times_s is None else np.asarray(times_s, dtype=float)
     if times.shape != (n,):
         raise ProtocolError("times_s", times.shape, f"must have one time per covariance matrix ({n})")
-    return DuanPlan(times_s=times, a0=a, variance_u=var_u, variance_v=var_v, value=value, bound=bound,
-                    margin=margin, per_setting=per, total=total, sigmas=k, overhead_s=float(overhead_s),
-                    lab_time_s=lab_time(total, times, overhead_s))
+    return DuanPlan(times_s=times, a0=a, rotation_rad=phi, variance_u=var_u, variance_v=var_v, value=value,
+                    bound=bound, margin=margin, per_setting=per, total=total, sigmas=k,
+                    overhead_s=float(overhead_s), lab_time_s=lab_time(total, times, overhead_s))

@@ -1,0 +1,106 @@
+"""Duan-criterion repetition counts from sample variances (oscillators)."""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+from scipy import stats
+
+from gqsim.errors import ProtocolError
+from gqsim.statistics import duan_plan, sample_variance_sd
+
+ATOL = 1e-12  # closed-form covariance entries of size O(e^{2r}) in float64
+
+
+def tmsv(r: float, n_th: float = 0.0) -> np.ndarray:
+    """Two-mode squeezed (thermal) covariance, vacuum = I, order (x1, p1, x2, p2) (physics-references Sec. 5.1)."""
+    c, s = np.cosh(2 * r), np.sinh(2 * r)
+    z = np.diag([1.0, -1.0])
+    return (2 * n_th + 1) * np.block([[c * np.eye(2), s * z], [s * z, c * np.eye(2)]])
+
+
+def rotate_mode_2(cov: np.ndarray, phi: float) -> np.ndarray:
+    c, s = np.cos(phi), np.sin(phi)
+    rot = np.eye(4)
+    rot[2:, 2:] = [[c, s], [-s, c]]
+    return rot @ cov @ rot.T
+
+
+@pytest.mark.parametrize("r, expected", [(0.5, 0.735759), (1.0, 0.270671)])
+def test_tmsv_duan_value_matches_reference(r, expected):
+    # physics-references Sec. 5.3: Var(x1 - x2) + Var(p1 + p2) = 2 e^{-2r} (a0 = -1), bound 2.
+    plan = duan_plan(tmsv(r), a0=-1.0, sigmas=3.0)
+    assert plan.value[0] == pytest.approx(expected, abs=1e-6)
+    assert plan.bound[0] == pytest.approx(2.0)
+    # The "wrong-sign" pair detects nothing: 2 e^{2r} (5.4366 at r = 0.5).
+    wrong = duan_plan(tmsv(r), a0=1.0, sigmas=3.0)
+    assert wrong.value[0] == pytest.approx(2 * np.exp(2 * r), rel=1e-12)
+    assert np.isinf(wrong.total[0])
+
+
+def test_optimised_quadratures_undo_a_local_rotation():
+    # A local phase rotation of mode 2 cannot change entanglement; the optimised plan finds
+    # the rotated EPR pair and recovers 2 e^{-2r} (Sec. 5.3) at a0 = 1.
+    r = 0.5
+    plan = duan_plan(rotate_mode_2(tmsv(r), 1.1), sigmas=3.0)
+    assert plan.value[0] == pytest.approx(2 * np.exp(-2 * r), abs=1e-9)
+    assert plan.a0[0] == pytest.approx(1.0, abs=0.01)
+
+
+def test_vacuum_and_thermal_states_cannot_be_certified():
+    # Product vacuum saturates the bound (Sec. 5.3); squeezed thermal with 2r < ln(2n+1) is separable (Sec. 5.1).
+    assert np.isinf(duan_plan(np.eye(4), a0=1.0, sigmas=3.0).total[0])
+    assert np.isinf(duan_plan(tmsv(0.2, n_th=1.0), sigmas=3.0).total[0])
+
+
+def test_readout_imprecision_adds_to_the_variances():
+    # Noise of variance e_x on each x reading and e_p on each p reading adds
+    # (a0^2 + 1/a0^2)(e_x + e_p) to Var(u) + Var(v) (independent noise, elementary).
+    r, ex, ep, a0 = 0.5, 0.03, 0.07, -1.3
+    clean = duan_plan(tmsv(r), a0=a0, sigmas=3.0)
+    noisy = duan_plan(tmsv(r), a0=a0, sigmas=3.0, imprecision_x=ex, imprecision_p=ep)
+    assert noisy.value[0] - clean.value[0] == pytest.approx((a0 ** 2 + a0 ** -2) * (ex + ep), abs=ATOL)
+    assert noisy.total[0] > clean.total[0]
+
+
+def test_sample_variance_sd_matches_chi_square():
+    # Cochran 1934: (n-1) s^2/sigma^2 ~ chi^2_{n-1}; sd(s^2) = sigma^2 sd(chi^2_{n-1})/(n-1) (scipy.stats).
+    for n in (5, 50, 1000):
+        assert sample_variance_sd(2.5, n) == pytest.approx(2.5 * stats.chi2.std(n - 1) / (n - 1), rel=1e-12)
+
+
+def test_duan_monte_carlo_matches_analytic_count():
+    # Seeded Gaussian samples of (x1, x2) and (p1, p2) with readout noise; the sum of the two
+    # sample variances must have the analytic mean and sd, and at the planned N (k = 2) the
+    # known-variance certification rate must match Phi(margin/sd - k) within 4 binomial s.e.
+    r, ex, ep, k = 0.1, 0.02, 0.03, 2.0
+    cov = tmsv(r)
+    plan = duan_plan(cov, a0=-1.0, sigmas=k, imprecision_x=ex, imprecision_p=ep)
+    n_u, n_v = (int(v) for v in plan.per_setting[0])
+    assert 100 < n_u < 5000  # normal approximation regime
+    trials = 2000
+    rng = np.random.default_rng(31)
+    moments = cov / 2 + np.diag([ex, ep, ex, ep])  # Cov = sigma/2 plus independent readout noise
+    xs = rng.multivariate_normal(np.zeros(4), moments, size=(trials, n_u))
+    ps = rng.multivariate_normal(np.zeros(4), moments, size=(trials, n_v))
+    u = xs[..., 0] - xs[..., 2]            # a0 = -1: u = x1 - x2
+    v = ps[..., 1] + ps[..., 3]            #          v = p1 + p2
+    d_hat = u.var(axis=1, ddof=1) + v.var(axis=1, ddof=1)
+    sd = np.hypot(sample_variance_sd(plan.variance_u[0], n_u), sample_variance_sd(plan.variance_v[0], n_v))
+    assert abs(d_hat.mean() - plan.value[0]) <= 4 * sd / np.sqrt(trials)
+    assert d_hat.std(ddof=1) == pytest.approx(sd, rel=4 / np.sqrt(2 * (trials - 1)) + 0.02)  # 2 %: chi^2 skew
+    assert plan.margin[0] >= k * sd
+    certified = np.mean(plan.bound[0] - d_hat >= k * sd)
+    predicted = stats.norm.cdf(plan.margin[0] / sd - k)
+    assert abs(certified - predicted) <= 4 * np.sqrt(predicted * (1 - predicted) / trials) + 0.02
+
+
+@pytest.mark.parametrize("kwargs, key", [
+    ({"imprecision_x": -0.1}, "imprecision_x"),
+    ({"a0": 0.0}, "a0"),
+    ({"confidence": 1.0}, "confidence"),
+])
+def test_bad_duan_inputs_are_one_line_errors(kwargs, key):
+    with pytest.raises(ProtocolError) as info:
+        duan_plan(tmsv(0.5), **kwargs)
+    assert str(info.value).startswith(key) and "\n" not in str(info.value)
