@@ -52,6 +52,7 @@ from typing import Any, Mapping, Sequence
 
 import numpy as np
 from scipy.constants import G, c, epsilon_0, hbar
+from scipy.constants import k as k_B
 from scipy.optimize import brentq
 
 from gqsim.errors import PhysicsError, ProtocolError
@@ -61,6 +62,7 @@ __all__ = [
     "clausius_mossotti_factor",
     "polarisability_volume_m3",
     "RetardedCasimirPolder",
+    "ThermalCasimirPolder",
     "LondonVanDerWaals",
     "Coulomb",
     "ChargeInducedDipole",
@@ -229,6 +231,96 @@ class RetardedCasimirPolder:
     def radial_derivative(self, r_m, order: int):
         """d^n U/dr^n of -C7 r^-7 [J/m^n], n = 1..4."""
         return _power_law(-self.coefficient_j_m7, 7, _separation(r_m), order)
+
+
+# Below this value of a = 2 pi k_B T r/(hbar c) the Matsubara sum equals the zero-temperature
+# integral to relative O(a^6) < 1e-12 (Euler-Maclaurin: the integrand's odd derivatives at 0
+# vanish up to the fifth), so the closed form is used there.
+_MATSUBARA_SWITCH = 0.01
+_MATSUBARA_SPAN = 45.0  # stop the sum at n a = 45: e^{-90} (n a)^4 is far below double precision
+
+
+def _dispersion_shape(y: np.ndarray, order: int) -> np.ndarray:
+    """r^(6+order) d^order/dr^order [r^-6 g(y)], y proportional to r, g = e^{-2y}(3+6y+5y^2+2y^3+y^4)."""
+    p = 3 + 6 * y + 5 * y**2 + 2 * y**3 + y**4
+    p1 = 6 + 10 * y + 6 * y**2 + 4 * y**3
+    p2 = 10 + 12 * y + 12 * y**2
+    damp = np.exp(-2 * y)
+    g, g1, g2 = damp * p, damp * (p1 - 2 * p), damp * (p2 - 4 * p1 + 4 * p)
+    if order == 0:
+        return g
+    if order == 1:
+        return y * g1 - 6 * g
+    if order == 2:
+        return y**2 * g2 - 12 * y * g1 + 42 * g
+    raise ValueError(f"order must be 1 or 2, got {order}")
+
+
+@dataclass(frozen=True, kw_only=True)
+class ThermalCasimirPolder:
+    """Casimir-Polder attraction of two dielectric spheres at temperature T (static polarisabilities).
+
+    U(r) = -(2 k_B T a_A a_B / r^6) sum'_{n>=0} g(n a), a = 2 pi k_B T r/(hbar c),
+    g(y) = e^{-2y}(3 + 6y + 5y^2 + 2y^3 + y^4), the n = 0 term halved: the zero-temperature
+    dispersion energy -(hbar/(pi r^6)) int_0^inf a_A a_B e^{-2y}(...) d xi of
+    [CasimirPolder1948] with the frequency integral replaced by the Matsubara sum
+    (hbar/pi) int d xi -> 2 k_B T sum'_n at xi_n = 2 pi n k_B T/hbar (Lifshitz theory,
+    [Lifshitz1956], from memory; the polynomial form from memory). Limits: T -> 0 gives
+    :class:`RetardedCasimirPolder`; r >> hbar c/(k_B T) gives the classical
+    -3 k_B T a_A a_B / r^6 (the n = 0 term). Same regime otherwise as the zero-temperature
+    class (r >> R, r >> c/W). Radial derivatives of order 1 and 2 only.
+
+    Parameters
+    ----------
+    radius_a_m, radius_b_m : sphere radii [m]
+    permittivity_a, permittivity_b : static relative permittivities (>= 1)
+    temperature_k : temperature of the field between the spheres [K] (> 0)
+    """
+
+    radius_a_m: float
+    radius_b_m: float
+    permittivity_a: float
+    permittivity_b: float
+    temperature_k: float
+    label: str = "casimir_polder"
+
+    def __post_init__(self):
+        RetardedCasimirPolder(radius_a_m=self.radius_a_m, radius_b_m=self.radius_b_m,
+                              permittivity_a=self.permittivity_a, permittivity_b=self.permittivity_b)
+        _positive("temperature_k", self.temperature_k, "K")
+
+    @property
+    def thermal_length_m(self) -> float:
+        """hbar c/(k_B T) [m]: beyond a few times this the classical -3 k_B T a_A a_B/r^6 rules."""
+        return hbar * c / (k_B * self.temperature_k)
+
+    def _evaluate(self, r_m, order: int):
+        r = _separation(r_m)
+        zero_t = RetardedCasimirPolder(radius_a_m=self.radius_a_m, radius_b_m=self.radius_b_m,
+                                       permittivity_a=self.permittivity_a, permittivity_b=self.permittivity_b)
+        alphas = zero_t.coefficient_j_m7 * 4.0 * math.pi / (23.0 * hbar * c)  # a_A a_B [m^6]
+        step = 2.0 * math.pi * r / self.thermal_length_m
+        out = np.empty_like(r, dtype=float)
+        flat_r, flat_a, flat_out = r.ravel(), step.ravel(), out.ravel()
+        for i, (ri, ai) in enumerate(zip(flat_r, flat_a)):
+            if ai < _MATSUBARA_SWITCH:
+                flat_out[i] = zero_t.radial_derivative(ri, order) if order else zero_t.energy_j(ri)
+                continue
+            n = np.arange(int(math.ceil(_MATSUBARA_SPAN / ai)) + 1)
+            terms = _dispersion_shape(n * ai, order)
+            total = terms.sum() - 0.5 * terms[0]
+            flat_out[i] = -2.0 * k_B * self.temperature_k * alphas * total / ri ** (6 + order)
+        return out.reshape(r.shape) if r.ndim else float(out)
+
+    def energy_j(self, r_m):
+        """U(r, T) [J] (Matsubara form of [CasimirPolder1948], [Lifshitz1956]; from memory)."""
+        return self._evaluate(r_m, 0)
+
+    def radial_derivative(self, r_m, order: int):
+        """d^n U/dr^n at fixed T [J/m^n], n = 1, 2 (term-by-term differentiation)."""
+        if isinstance(order, bool) or order not in (1, 2):
+            raise ValueError(f"order must be 1 or 2, got {order}")
+        return self._evaluate(r_m, order)
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -754,14 +846,16 @@ def oscillator_attribution(potentials: Sequence, *, separation_m, mass_a_kg: flo
 # ----------------------------------------------------------------------------- safe distances
 
 def casimir_polder_gravity_crossover_m(*, relative_permittivity: float, density_kg_m3: float,
-                                       fraction: float = DEFAULT_SHARE_LIMIT) -> float:
-    """Separation d* below which retarded Casimir-Polder exceeds ``fraction`` of gravity [m].
+                                       fraction: float = DEFAULT_SHARE_LIMIT, temperature_k: float = 0.0) -> float:
+    """Separation d* below which Casimir-Polder exceeds ``fraction`` of gravity [m].
 
-    Two equal homogeneous spheres (m = 4/3 pi R^3 rho): setting
+    Two equal homogeneous spheres (m = 4/3 pi R^3 rho): at T = 0, setting
     23 hbar c R^6 beta^2/(4 pi d^7) = f G m^2/d gives the radius-independent
     d* = [207 hbar c beta^2/(64 pi^3 f G rho^2)]^(1/6), beta = (eps-1)/(eps+2)
     (derived from Eq. (56) of [CasimirPolder1948], number from memory, and Newton's law;
-    shared physics references §4.1).
+    shared physics references §4.1). For ``temperature_k`` > 0 the ratio of
+    :class:`ThermalCasimirPolder` to gravity is still radius independent (both scale as
+    R^6) and d* is found numerically with :func:`smallest_separation_below_m`.
     """
     beta = clausius_mossotti_factor(relative_permittivity)
     rho = _positive("density_kg_m3", density_kg_m3, "kg/m^3")
@@ -769,7 +863,19 @@ def casimir_polder_gravity_crossover_m(*, relative_permittivity: float, density_
     if beta == 0:
         raise PhysicsError("relative_permittivity", relative_permittivity,
                            "eps = 1 has no Casimir-Polder force, so every separation is safe")
-    return (207.0 * hbar * c * beta**2 / (64.0 * math.pi**3 * f * G * rho**2)) ** (1.0 / 6.0)
+    cold = (207.0 * hbar * c * beta**2 / (64.0 * math.pi**3 * f * G * rho**2)) ** (1.0 / 6.0)
+    temperature = _finite("temperature_k", temperature_k, "K")
+    if temperature < 0:
+        raise ProtocolError("temperature_k", temperature_k, "must be >= 0 K")
+    if temperature == 0:
+        return cold
+    radius = 1e-6  # any radius gives the same answer
+    mass = 4.0 / 3.0 * math.pi * radius**3 * rho
+    warm = ThermalCasimirPolder(radius_a_m=radius, radius_b_m=radius, permittivity_a=relative_permittivity,
+                                permittivity_b=relative_permittivity, temperature_k=temperature)
+    # The thermal force is never weaker than the T = 0 one, so d* >= cold; search above it.
+    return smallest_separation_below_m(warm, NewtonianGravity(mass_a_kg=mass, mass_b_kg=mass), fraction=f,
+                                       lower_m=0.5 * cold, upper_m=1e4 * cold)
 
 
 def _last_crossing(ratio, lower: float, upper: float, fraction: float, what: str, points: int = 400) -> float:
@@ -933,9 +1039,11 @@ def potentials_from_tables(interactions: Mapping[str, Any] | None, body_tables: 
         if name == "gravity":
             out.append(NewtonianGravity(mass_a_kg=masses_kg[0], mass_b_kg=masses_kg[1]))
         elif name == "casimir_polder":
-            out.append(RetardedCasimirPolder(radius_a_m=radius(0, name), radius_b_m=radius(1, name),
-                                             permittivity_a=permittivity(0, name, False),
-                                             permittivity_b=permittivity(1, name, False)))
+            spheres = dict(radius_a_m=radius(0, name), radius_b_m=radius(1, name),
+                           permittivity_a=permittivity(0, name, False), permittivity_b=permittivity(1, name, False))
+            temperature = float(interactions.get("field_temperature_k", 0.0))
+            out.append(ThermalCasimirPolder(**spheres, temperature_k=temperature) if temperature > 0
+                       else RetardedCasimirPolder(**spheres))
         elif name == "london_van_der_waals":
             out.append(LondonVanDerWaals(radius_a_m=radius(0, name), radius_b_m=radius(1, name),
                                          permittivity_a=permittivity(0, name, False),

@@ -52,8 +52,10 @@ def budget_command(protocol: Path, share_limit: float | None, as_json: bool):
 @click.option("--density-kg-m3", type=float, default=None, help="Mass density [kg/m^3].")
 @click.option("--fraction", type=float, default=0.1, show_default=True,
               help="Casimir-Polder allowed as this fraction of gravity.")
+@click.option("--field-temperature-k", type=float, default=0.0, show_default=True,
+              help="Temperature of the field between the spheres [K]; > 0 includes thermal Casimir-Polder.")
 def safe_gap_command(material: str | None, relative_permittivity: float | None, density_kg_m3: float | None,
-                     fraction: float):
+                     fraction: float, field_temperature_k: float):
     """Separation below which Casimir-Polder exceeds FRACTION of gravity (equal homogeneous spheres).
 
     The answer does not depend on the sphere radius.
@@ -71,5 +73,6 @@ def safe_gap_command(material: str | None, relative_permittivity: float | None, 
     if eps is None or rho is None:
         raise ProtocolError("--relative-permittivity/--density-kg-m3", None,
                             "give --material, or both --relative-permittivity and --density-kg-m3")
-    gap = casimir_polder_gravity_crossover_m(relative_permittivity=eps, density_kg_m3=rho, fraction=fraction)
+    gap = casimir_polder_gravity_crossover_m(relative_permittivity=eps, density_kg_m3=rho, fraction=fraction,
+                                             temperature_k=field_temperature_k)
     click.echo(f"casimir_polder_safe_gap_m: {gap:.6g}")

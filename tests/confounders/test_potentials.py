@@ -5,6 +5,7 @@ import math
 import numpy as np
 import pytest
 from scipy.constants import G, c, e, epsilon_0, hbar
+from scipy.constants import k as k_B
 from scipy.integrate import quad
 
 from gqsim.confounders import (
@@ -13,6 +14,7 @@ from gqsim.confounders import (
     DipoleDipole,
     LondonVanDerWaals,
     RetardedCasimirPolder,
+    ThermalCasimirPolder,
     casimir_polder_gravity_crossover_m,
     clausius_mossotti_factor,
     pair_energy_at,
@@ -288,3 +290,58 @@ def test_conductors_and_non_positive_separations_are_physics_errors():
         RetardedCasimirPolder(radius_a_m=1e-6, radius_b_m=1e-6, permittivity_a=None, permittivity_b=5.7)
     with pytest.raises(PhysicsError, match="separation_m"):
         diamond_pair().energy_j(np.array([1e-4, 0.0]))
+
+
+# ----------------------------------------------------------------------------- finite temperature
+
+def _thermal(temperature_k):
+    return ThermalCasimirPolder(radius_a_m=1e-6, radius_b_m=2e-6, permittivity_a=5.7, permittivity_b=3.8,
+                                temperature_k=temperature_k)
+
+
+def test_thermal_casimir_polder_limits():
+    # T -> 0: the Matsubara sum becomes the frequency integral, i.e. the 1948 law (Euler-Maclaurin
+    # error O(a^6) with a = 2 pi r/(thermal length) = 0.05 here: < 1e-7).
+    cold = _thermal(0.01)
+    r = 0.05 * cold.thermal_length_m / (2 * math.pi)
+    zero_t = RetardedCasimirPolder(radius_a_m=1e-6, radius_b_m=2e-6, permittivity_a=5.7, permittivity_b=3.8)
+    assert cold.energy_j(r) == pytest.approx(zero_t.energy_j(r), rel=1e-7)
+    # r >> hbar c/(k_B T): only the n = 0 term survives, U = -3 k_B T a_A a_B / r^6 (classical
+    # zero-frequency limit of Lifshitz theory, from memory); the n = 1 term is ~ e^{-2a} a^4 = 1e-19.
+    hot = _thermal(300.0)
+    r = 20 * hot.thermal_length_m
+    alphas = polarisability_volume_m3(1e-6, 5.7) * polarisability_volume_m3(2e-6, 3.8)
+    assert hot.energy_j(r) == pytest.approx(-3 * k_B * 300.0 * alphas / r**6, rel=1e-12)
+    # In between the thermal energy is larger than either limit alone would suggest (more attraction).
+    mid = _thermal(4.0)
+    r = mid.thermal_length_m
+    assert mid.energy_j(r) < zero_t.energy_j(r) < 0
+
+
+@pytest.mark.parametrize("temperature_k", [0.05, 4.0, 300.0])
+def test_thermal_derivatives_match_finite_differences(temperature_k):
+    pot = _thermal(temperature_k)
+    r = np.array([20e-6, 200e-6, 2e-3])
+    h = 1e-4 * r
+    first = (pot.energy_j(r + h) - pot.energy_j(r - h)) / (2 * h)
+    second = (pot.energy_j(r + h) - 2 * pot.energy_j(r) + pot.energy_j(r - h)) / h**2
+    np.testing.assert_allclose(pot.radial_derivative(r, 1), first, rtol=FD_RTOL)
+    np.testing.assert_allclose(pot.radial_derivative(r, 2), second, rtol=FD_RTOL)
+    with pytest.raises(ValueError, match="order"):
+        pot.radial_derivative(r, 3)
+
+
+def test_room_temperature_field_moves_the_safe_distance_out():
+    # At 300 K the classical term (~ k_B T / r^6) exceeds the zero-temperature law (~ hbar c / r^7)
+    # beyond hbar c/(k_B T) = 7.6 um, so the CP/gravity crossover moves out; the thermal length
+    # check is the Lifshitz-theory regime statement (from memory).
+    m = sphere_mass(1e-6)
+    grav = NewtonianGravity(mass_a_kg=m, mass_b_kg=m)
+    hot = ThermalCasimirPolder(radius_a_m=1e-6, radius_b_m=1e-6, permittivity_a=DIAMOND_EPS,
+                               permittivity_b=DIAMOND_EPS, temperature_k=300.0)
+    d_cold = casimir_polder_gravity_crossover_m(relative_permittivity=DIAMOND_EPS, density_kg_m3=DIAMOND_RHO)
+    d_hot = smallest_separation_below_m(hot, grav, fraction=0.1)
+    # In the classical regime the crossover is closed form too: 3 k_B T a^2/d^5 = f G m^2.
+    a = polarisability_volume_m3(1e-6, DIAMOND_EPS)
+    assert d_hot == pytest.approx((3 * k_B * 300.0 * a**2 / (0.1 * G * m * m)) ** 0.2, rel=1e-9)
+    assert d_hot > 2 * d_cold

@@ -152,3 +152,30 @@ def test_factory_for_pairwise_model_builders_reads_body_objects():
         potential_factory("dipole_dipole")(a, b)
     with pytest.raises(ProtocolError, match="interactions.include"):
         potential_factory("magnetism")
+
+
+def test_field_temperature_selects_the_thermal_casimir_polder():
+    from gqsim.confounders import ThermalCasimirPolder
+
+    bodies = [{"material": "diamond"}, {"material": "diamond"}]
+    warm = potentials_from_tables({"include": ["casimir_polder"], "field_temperature_k": 4.0}, bodies,
+                                  masses_kg=[1e-14, 1e-14], radii_m=[1e-6, 1e-6])
+    cold = potentials_from_tables({"include": ["casimir_polder"], "field_temperature_k": 0.0}, bodies,
+                                  masses_kg=[1e-14, 1e-14], radii_m=[1e-6, 1e-6])
+    assert isinstance(warm[0], ThermalCasimirPolder) and warm[0].temperature_k == 4.0
+    assert isinstance(cold[0], RetardedCasimirPolder)
+
+
+def test_cli_safe_gap_with_a_warm_field_matches_the_classical_closed_form():
+    # 300 K: the crossover lies deep in the classical regime, 3 k_B T a^2/d^5 = f G m^2 with
+    # a = R^3 beta, m = 4/3 pi R^3 rho (radius cancels); Lifshitz zero-frequency term, from memory.
+    from scipy.constants import G
+    from scipy.constants import k as k_B
+
+    out = CliRunner().invoke(cli, ["forces", "safe-gap", "--material", "diamond", "--field-temperature-k", "300"])
+    assert out.exit_code == 0, out.output
+    beta = 4.7 / 7.7
+    expected = (3 * k_B * 300 * beta**2 / (0.1 * G * (4 / 3 * math.pi * 3510) ** 2)) ** 0.2
+    assert float(out.output.split()[-1]) == pytest.approx(expected, rel=1e-5)  # printed to 6 figures
+    bad = CliRunner().invoke(cli, ["forces", "safe-gap", "--material", "diamond", "--field-temperature-k", "-1"])
+    assert bad.exit_code == 2 and "temperature_k" in bad.output
