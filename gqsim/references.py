@@ -130,6 +130,9 @@ _ENTRIES = [
               title="The distribution of quadratic forms in a normal system, with applications to the "
                     "analysis of covariance", journal="Math. Proc. Cambridge Philos. Soc. 30, 178", year=1934,
               identifier="doi:10.1017/S0305004100016595", from_memory=True),
+    Reference(key="Lifshitz1956", authors="E. M. Lifshitz",
+              title="The theory of molecular attractive forces between solids",
+              journal="Sov. Phys. JETP 2, 73", year=1956, identifier="textbook citation", from_memory=True),
     Reference(key="London1937", authors="F. London", title="The general theory of molecular forces",
               journal="Trans. Faraday Soc. 33, 8", year=1937, identifier="doi:10.1039/TF937330008B",
               from_memory=True),
