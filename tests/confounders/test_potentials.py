@@ -345,3 +345,17 @@ def test_room_temperature_field_moves_the_safe_distance_out():
     a = polarisability_volume_m3(1e-6, DIAMOND_EPS)
     assert d_hot == pytest.approx((3 * k_B * 300.0 * a**2 / (0.1 * G * m * m)) ** 0.2, rel=1e-9)
     assert d_hot > 2 * d_cold
+
+
+def test_every_cited_key_resolves_in_the_reference_registry():
+    import re
+
+    import gqsim.confounders as mod
+    from gqsim.references import REFERENCES
+
+    own = [obj for obj in vars(mod).values() if callable(obj) and getattr(obj, "__module__", "") == mod.__name__]
+    methods = [m for cls in own if isinstance(cls, type) for m in vars(cls).values() if callable(m)]
+    text = " ".join(obj.__doc__ or "" for obj in own + methods) + (mod.__doc__ or "")
+    keys = set(re.findall(r"of \[([A-Za-z]+\d{4})\]", text)) | set(re.findall(r"\[([A-Z][a-z]+\d{4})\]", text))
+    assert {"CasimirPolder1948", "Jackson1999", "London1937", "Lifshitz1956"} <= keys
+    assert keys <= set(REFERENCES), keys - set(REFERENCES)
