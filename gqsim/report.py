@@ -106,10 +106,12 @@ def plot_measures(result: Result, ax=None):
                 ax.axvspan(lo, hi, color="0.85", zorder=0, lw=0)
             ax.axvspan(np.nan, np.nan, color="0.85", label=f"entangled ({_label(name)} > 0)")
             shade_done = True
+    if any(name.startswith("witness") for name in result.series):
+        ax.axhline(1.0, color="0.4", ls="--", lw=0.8, label="witness separable bound (1)")
     ax.set_xlabel("time t [s]")
     ax.set_ylabel("measure value")
     ax.set_title(result.summary.get("title") or result.family)
-    ax.legend(fontsize="small", loc="best")
+    ax.legend(fontsize="small", loc="upper left", bbox_to_anchor=(1.01, 1.0), borderaxespad=0.0)
     return ax
 
 
@@ -157,7 +159,7 @@ def write_outputs(result: Result, out_dir: str | Path) -> list[Path]:
     path = out / "protocol.resolved.toml"
     path.write_text(tomli_w.dumps(dict(result.provenance.to_dict()["protocol"])))
     written.append(path)
-    fig, ax = plt.subplots(figsize=(7.0, 4.2))
+    fig, ax = plt.subplots(figsize=(10.0, 4.4))
     plot_measures(result, ax=ax)
     fig.tight_layout()
     for name in ("measures.png", "measures.pdf"):

@@ -36,9 +36,15 @@ def correlation_matrix(rho: np.ndarray) -> np.ndarray:
 
 
 def spin_witness_lab(rho: np.ndarray) -> np.ndarray:
-    """|<X (x) Z> + <Y (x) Y>| in the branch (lab) frame."""
-    t = correlation_matrix(rho)
-    return np.abs(t[..., 0, 2] + t[..., 1, 1])
+    """|<X (x) Z> + <Y (x) Y>| in the branch (lab) frame.
+
+    Read off the matrix elements directly (basis |00>, |01>, |10>, |11>):
+    <X Z> = 2 Re(rho_{00,10} - rho_{01,11}), <Y Y> = 2 Re(rho_{01,10} - rho_{00,11}).
+    """
+    r = np.asarray(rho)
+    xz = 2 * np.real(r[..., 0, 2] - r[..., 1, 3])
+    yy = 2 * np.real(r[..., 1, 2] - r[..., 0, 3])
+    return np.abs(xz + yy)
 
 
 @dataclass(frozen=True)

@@ -19,6 +19,7 @@ shared §1.8). No time stepping, hence no step-size error.
 
 from __future__ import annotations
 
+import numba
 import numpy as np
 
 from gqsim.channels import decay_exponents
@@ -26,7 +27,7 @@ from gqsim.engines import Evolution
 from gqsim.errors import PhysicsError
 from gqsim.model import SuperpositionModel
 
-__all__ = ["evolve", "ENGINE_NAME"]
+__all__ = ["evolve", "branch_parameters", "states_from_parameters", "ENGINE_NAME"]
 
 ENGINE_NAME = "closed_form"
 
@@ -45,16 +46,49 @@ def evolve(model: SuperpositionModel, channels: tuple, times_s: np.ndarray) -> E
             raise PhysicsError(f"{body.key}.spin.t1_s", body.spin.t1_s,
                                "spin T1 needs the lindblad engine (solver.engine = 'lindblad' or 'auto')")
     times = np.asarray(times_s, dtype=float)
+    total, ga, gb = branch_parameters(model, channels, times)
+    return Evolution(times_s=times, states=states_from_parameters(model, total, ga, gb),
+                     engine=ENGINE_NAME, stats={"method": "exact element-wise"})
+
+
+def branch_parameters(model: SuperpositionModel, channels: tuple, times: np.ndarray):
+    """The exact solution's ingredients: joint phases Phi_ab (n, d_A, d_B) [rad] and the decay
+    exponents Gamma^A (n, d_A, d_A), Gamma^B (n, d_B, d_B)."""
+    setup = model.setup
     phases = model.phases_rad(times)
     fa, fb = model.field_phases_rad(times)
     total = phases + fa[:, :, None] + fb[:, None, :]
-    amps = model.initial_amplitudes().reshape(model.dims)
-    psi = (amps[None] * np.exp(1j * total)).reshape(times.size, -1)
-    rho = psi[:, :, None] * psi[:, None, :].conj()
-    ga = decay_exponents(channels[0], setup.bodies[0], setup.timing, times)
-    gb = decay_exponents(channels[1], setup.bodies[1], setup.timing, times)
-    if np.any(ga) or np.any(gb):
-        exponent = ga[:, :, None, :, None] + gb[:, None, :, None, :]
-        n, dA, dB = times.size, *model.dims
-        rho *= np.exp(-exponent).reshape(n, dA * dB, dA * dB)
-    return Evolution(times_s=times, states=rho, engine=ENGINE_NAME, stats={"method": "exact element-wise"})
+    a, b = setup.bodies
+    ga = decay_exponents(channels[0], a, setup.timing, times)
+    same = channels[0] == channels[1] and np.array_equal(a.branch_separations_m, b.branch_separations_m)
+    gb = ga if same else decay_exponents(channels[1], b, setup.timing, times)
+    return total, ga, gb
+
+
+def states_from_parameters(model: SuperpositionModel, total: np.ndarray, ga: np.ndarray, gb: np.ndarray):
+    """rho_{ab,a'b'} = c_a d_b c*_a' d*_b' e^{i(Phi_ab - Phi_a'b')} e^{-Gamma^A_aa' - Gamma^B_bb'}."""
+    amps = model.initial_amplitudes().reshape(model.dims).astype(np.complex128)
+    return _build_states(np.ascontiguousarray(total, dtype=np.float64), amps,
+                         np.exp(-np.ascontiguousarray(ga, dtype=np.float64)),
+                         np.exp(-np.ascontiguousarray(gb, dtype=np.float64)))
+
+
+@numba.njit(cache=True)
+def _build_states(total, amps, qa, qb):  # pragma: no cover - compiled
+    n, da, db = total.shape
+    size = da * db
+    rho = np.empty((n, size, size), dtype=np.complex128)
+    psi = np.empty(size, dtype=np.complex128)
+    for k in range(n):
+        for a in range(da):
+            for b in range(db):
+                phase = total[k, a, b]
+                psi[a * db + b] = amps[a, b] * complex(np.cos(phase), np.sin(phase))
+        for a in range(da):
+            for b in range(db):
+                left = psi[a * db + b]
+                for a2 in range(da):
+                    for b2 in range(db):
+                        rho[k, a * db + b, a2 * db + b2] = (left * psi[a2 * db + b2].conjugate()
+                                                            * qa[k, a, a2] * qb[k, b, b2])
+    return rho

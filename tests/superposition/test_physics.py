@@ -169,3 +169,13 @@ def test_split_and_recombine_phase_matches_independent_quadrature():
     expected = quad(rate, 0, t_end, args=(+1, -1), points=[0.4, 1.4], epsabs=1e-13)[0]  # R(A)-L(B)
     ours = model.phases_rad(np.array([t_end]))[0][1, 0]
     assert ours == pytest.approx(expected, abs=1e-10)
+
+
+def test_earth_gravity_along_the_split_keeps_measures_exact_and_warns():
+    # m g dx t / hbar ~ 6e17 rad: far beyond double precision; being local it must not touch
+    # any entanglement measure, and the run must say the lab-frame witness is meaningless.
+    base = gqsim.simulate(two_body_protocol(points=6))
+    tilted = gqsim.simulate(two_body_protocol(points=6, extra={"field": {"acceleration_m_s2": [9.80665, 0, 0]}}))
+    for name in ("log_negativity", "concurrence", "witness_optimised", "entangling_phase", "purity"):
+        np.testing.assert_allclose(tilted.series[name], base.series[name], atol=1e-9)
+    assert any("double precision" in note for note in tilted.notes)
