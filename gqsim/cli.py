@@ -23,6 +23,7 @@ __all__ = ["main", "cli", "COMMAND_MODULES"]
 #: naming a click command. Add a line here to register a new one.
 COMMAND_MODULES: tuple[str, ...] = (
     "gqsim.confounders_cli:forces_group",
+    "gqsim.certify_cli:certify_command",
     "gqsim.budget_cli:noise_group",
 )
 

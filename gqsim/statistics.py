@@ -476,7 +476,8 @@ def duan_plan(covariance, times_s=None, *, a0: float | None = None, imprecision_
         vu, vv = _duan_variances(cov[:, None], grid[None, :], imprecision_x, imprecision_p)
         bound = grid ** 2 + 1 / grid ** 2
         rel = (bound - vu - vv) / (vu + vv)  # N_total ~ 2 k^2 (Var_u + Var_v)^2 / margin^2
-        a = grid[np.argmax(rel, axis=1)]
+        # ties (e.g. the vacuum, where every a0 saturates the bound) go to the symmetric a0 = 1
+        a = grid[np.argmax(rel - 1e-12 * np.abs(np.log(grid)), axis=1)]
     else:
         if isinstance(a0, bool) or not isinstance(a0, (int, float)) or not np.isfinite(a0) or a0 == 0:
             raise ProtocolError("a0", a0, "must be a finite non-zero real number")

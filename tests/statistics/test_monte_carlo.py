@@ -14,7 +14,7 @@ from scipy import stats
 from gqsim.errors import ProtocolError
 from gqsim.statistics import estimate_from_counts, monte_carlo_check, plan_repetitions, simulate_records
 from gqsim.witness_design import ReadoutModel, optimal_ppt_witness, setting_table, spin_correlation_witness
-from stat_states import branch_phase_state, cz_plus_plus, dephased
+from tests.statistics.stat_states import branch_phase_state, cz_plus_plus, dephased
 
 N_SE = 4.0  # standard errors allowed between a Monte-Carlo estimate and its prediction
 READOUT = ReadoutModel(assignment_fidelity_a=[0.97, 0.92], assignment_fidelity_b=0.95,

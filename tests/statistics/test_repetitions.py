@@ -22,7 +22,7 @@ from gqsim.witness_design import (
     setting_table,
     spin_correlation_witness,
 )
-from stat_states import cz_plus_plus
+from tests.statistics.stat_states import cz_plus_plus
 
 ATOL = 1e-10  # float64 round-off on O(1) probabilities
 

@@ -20,7 +20,7 @@ from gqsim.witness_design import (
     spin_correlation_witness,
     witness_from_operator,
 )
-from stat_states import branch_phase_state, cz_plus_plus, dephased, random_density, random_separable, werner
+from tests.statistics.stat_states import branch_phase_state, cz_plus_plus, dephased, random_density, random_separable, werner
 
 #: Tolerance for identities among O(1) matrix elements computed in float64 by eigh / einsum.
 ATOL = 1e-10
