@@ -34,13 +34,15 @@ def forces_group():
               help="Flag non-gravitational shares above this fraction (default: the protocol's, else 0.1).")
 @click.option("--json", "as_json", is_flag=True, help="Print one JSON object instead of the table.")
 def budget_command(protocol: Path, share_limit: float | None, as_json: bool):
-    """Entangling phase, share and entanglement of each force in a superposition PROTOCOL.
+    """Share of each force in the entanglement a PROTOCOL makes.
 
-    Exit status 3 when a non-gravitational share exceeds the limit.
+    Superpositions: entangling phase [rad] and pure-state E_N [ebit] per force. Oscillators:
+    coupling [N/m] and the engine's maximum E_N [nat] per force. Exit status 3 when a
+    non-gravitational share exceeds the limit.
     """
-    from gqsim.confounders import superposition_budget
+    from gqsim.confounders import force_budget
 
-    table = superposition_budget(_read_toml(protocol), share_limit=share_limit, source=str(protocol))
+    table = force_budget(_read_toml(protocol), share_limit=share_limit, source=str(protocol))
     click.echo(json.dumps(table.to_json_dict()) if as_json else table.as_text())
     if table.flagged:
         click.get_current_context().exit(3)

@@ -16,6 +16,7 @@ from gqsim.confounders import (
     Coulomb,
     DipoleDipole,
     RetardedCasimirPolder,
+    force_budget,
     potentials_from_tables,
     superposition_budget,
     with_interaction_keys,
@@ -179,3 +180,31 @@ def test_cli_safe_gap_with_a_warm_field_matches_the_classical_closed_form():
     assert float(out.output.split()[-1]) == pytest.approx(expected, rel=1e-5)  # printed to 6 figures
     bad = CliRunner().invoke(cli, ["forces", "safe-gap", "--material", "diamond", "--field-temperature-k", "-1"])
     assert bad.exit_code == 2 and "temperature_k" in bad.output
+
+
+def test_oscillator_ion_rehearsal_budget_against_the_coupling_formulas():
+    # Two singly charged ions 50 um apart, 1 MHz: kappa = -U''(d) = -2 e^2/(4 pi eps0 d^3) (Coulomb's
+    # law), g = kappa/(2 m omega) (shared references §2.1 ladder form), and from the engine
+    # E_N,max ~ 2 lambda, lambda = |g|/omega (§2.2 quench from the ground state: 0.0020040 for
+    # lambda = 1e-3, i.e. the estimate holds to 0.2 %; 0.5 % allows for that and the time grid).
+    from scipy.constants import epsilon_0
+
+    data = load("charged-rehearsal-ions.toml")
+    schema = with_interaction_keys(schema_for("oscillators"))
+    assert not list(jsonschema.Draft202012Validator(schema).iter_errors(data))
+    table = force_budget(data)
+    m, d, w = 6.6359e-26, 50e-6, 2 * math.pi * 1e6
+    kappa = -2 * e**2 / (4 * math.pi * epsilon_0 * d**3)
+    row = table.row("coulomb")
+    assert row.value == pytest.approx(kappa, rel=1e-9)
+    assert row.extra["coupling_rate_rad_s"] == pytest.approx(kappa / (2 * m * w), rel=1e-9)
+    assert row.log_negativity == pytest.approx(2 * abs(kappa) / (2 * m * w) / w, rel=5e-3)
+    assert table.flagged and table.row("gravity").log_negativity < 1e-11
+    assert table.row("all").log_negativity == pytest.approx(row.log_negativity, rel=1e-6)
+
+
+def test_cli_budget_reads_oscillator_protocols():
+    out = CliRunner().invoke(cli, ["forces", "budget", "--json", str(PROTOCOLS / "charged-rehearsal-ions.toml")])
+    assert out.exit_code == 3  # Coulomb dominates: flagged
+    doc = json.loads(out.output)
+    assert doc["family"] == "oscillators" and doc["value_unit"] == "N/m"
