@@ -46,7 +46,7 @@ from __future__ import annotations
 
 import json
 import math
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from importlib import resources
 from typing import Any, Mapping, Sequence
 
@@ -1211,6 +1211,15 @@ def oscillator_budget(data: Mapping[str, Any], *, share_limit: float | None = No
                if not (interactions.get("conducting_screen") and n in ELECTROMAGNETIC_LABELS)]
     labels = [b.label for b in setup.bodies]
     raw = [dict(t) for t in data["bodies"]]
+    if "dipole_dipole" in include:
+        line = np.subtract(setup.bodies[1].position_m, setup.bodies[0].position_m)
+        for body in setup.bodies:
+            for axis in body.modes:
+                unit = np.eye(3)["xyz".index(axis)]
+                if abs(abs(unit @ line) - np.linalg.norm(line)) > 1e-12 * np.linalg.norm(line):
+                    raise PhysicsError("interactions.include", "dipole_dipole",
+                                       f"mode {body.label}.{axis} is not along the line of centres; the oscillator "
+                                       "model's Hessian is central (wire pair_hessian_at first)")
 
     def factory(name: str):
         def make(body_a, body_b):
@@ -1218,8 +1227,11 @@ def oscillator_budget(data: Mapping[str, Any], *, share_limit: float | None = No
             tables = [{**({"material": b.material} if b.material else {}), **_body_table(raw[labels.index(b.label)])}
                       for b in pair]
             table = {"include": [name], "field_temperature_k": interactions.get("field_temperature_k", 0.0)}
-            return potentials_from_tables(table, tables, masses_kg=[b.mass_kg for b in pair],
-                                          radii_m=[b.radius_m for b in pair])[0]
+            pot = potentials_from_tables(table, tables, masses_kg=[b.mass_kg for b in pair],
+                                         radii_m=[b.radius_m for b in pair])[0]
+            if isinstance(pot, DipoleDipole):  # radial interface along the actual line of centres
+                pot = replace(pot, axis=np.subtract(body_b.position_m, body_a.position_m))
+            return pot
         make.__name__ = name
         return make
 

@@ -208,3 +208,27 @@ def test_cli_budget_reads_oscillator_protocols():
     assert out.exit_code == 3  # Coulomb dominates: flagged
     doc = json.loads(out.output)
     assert doc["family"] == "oscillators" and doc["value_unit"] == "N/m"
+
+
+def test_oscillator_budget_screen_and_dipoles():
+    from scipy.constants import epsilon_0
+
+    data = load("charged-rehearsal-ions.toml")
+    data["interactions"]["conducting_screen"] = True
+    screened = force_budget(data)
+    assert [r.label for r in screened.rows] == ["gravity", "all"] and not screened.flagged
+    # Head-to-tail dipoles along the chain: kappa = -U''(d) = -12 C/d^5 with U = C/d^3,
+    # C = -2 p^2/(4 pi eps0) (Jackson Eq. (4.26), from memory).
+    p = 1e-29
+    data = load("charged-rehearsal-ions.toml")
+    data["interactions"] = {"include": ["gravity", "dipole_dipole"]}
+    for body in data["bodies"]:
+        body["dipole_c_m"] = [p, 0.0, 0.0]
+    table = force_budget(data)
+    coeff = -2 * p * p / (4 * math.pi * epsilon_0)
+    assert table.row("dipole_dipole").value == pytest.approx(-12 * coeff / 50e-6**5, rel=1e-9)
+    # Transverse modes would need the orientation-aware Hessian: refused, one line.
+    for body in data["bodies"]:
+        body["modes"] = ["y"]
+    with pytest.raises(PhysicsError, match="line of centres"):
+        force_budget(data)
