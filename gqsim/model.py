@@ -163,6 +163,14 @@ class SuperpositionModel:
         phi = self.phases_rad(times_s)
         return phi[:, 0, -1] + phi[:, -1, 0] - phi[:, 0, 0] - phi[:, -1, -1]
 
+    def entangling_phase_matrix_rad(self, time_s: float) -> np.ndarray:
+        """Qudit generalisation at one time: theta[a, a', b, b'] = phi_ab' + phi_a'b - phi_ab - phi_a'b'
+        [rad], shape (d_A, d_A, d_B, d_B); every local-unitary-invariant phase combination of the
+        branch pairs (a, a') of A and (b, b') of B. For qubits theta[0, 1, 0, 1] is theta."""
+        phi = self.phases_rad(np.array([time_s]))[0]
+        return (phi[:, None, None, :] + phi[None, :, :, None]
+                - phi[:, None, :, None] - phi[None, :, None, :])
+
     def analytic_entangling_rate_rad_s(self) -> float:
         """d theta/dt while the branches are held apart [rad/s]:
         (G m_A m_B / hbar)(1/r_LR + 1/r_RL - 1/r_LL - 1/r_RR) for gravity alone

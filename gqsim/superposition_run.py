@@ -157,6 +157,12 @@ def _summarise(model: SuperpositionModel, series, times, states, engine):
         "back_of_envelope_rate_rad_s": entangling_rate_estimate(np.sqrt(a.mass_kg * b.mass_kg), span_a, distance),
         "dephasing_threshold_per_s": abs(rate) / 2,
     }
+    if model.dims != (2, 2):
+        matrix = model.entangling_phase_matrix_rad(hold_end)
+        idx = np.unravel_index(np.argmax(np.abs(matrix)), matrix.shape)
+        summary["entangling_phase"]["largest_pair_phase_rad"] = float(matrix[idx])
+        summary["entangling_phase"]["largest_pair_branches"] = {"body_a": [int(idx[0]), int(idx[1])],
+                                                                "body_b": [int(idx[2]), int(idx[3])]}
     notes = []
     scale = model.field_phase_scale_rad()
     if scale > FIELD_PHASE_PRECISION_LIMIT_RAD:

@@ -179,3 +179,18 @@ def test_earth_gravity_along_the_split_keeps_measures_exact_and_warns():
     for name in ("log_negativity", "concurrence", "witness_optimised", "entangling_phase", "purity"):
         np.testing.assert_allclose(tilted.series[name], base.series[name], atol=1e-9)
     assert any("double precision" in note for note in tilted.notes)
+
+
+def test_qudit_phase_matrix_generalises_theta():
+    # For qubits the matrix entry [0, 1, 0, 1] is theta (Bose et al. 2017 definition); for
+    # qutrits every entry is phi_ab' + phi_a'b - phi_ab - phi_a'b' of the 1/r phases.
+    qubit = gqsim.build(two_body_protocol())
+    assert qubit.entangling_phase_matrix_rad(2.5)[0, 1, 0, 1] == pytest.approx(0.313934, abs=1e-6)
+    qutrit = gqsim.build(two_body_protocol(branch_count=3))
+    matrix = qutrit.entangling_phase_matrix_rad(2.5)
+    xs = np.array([-125e-6, 0.0, 125e-6])
+    a_pos, b_pos = -225e-6 + xs, 225e-6 + xs
+    phi = _bose_phase(1e-14, np.abs(a_pos[:, None] - b_pos[None, :]), 2.5)
+    assert matrix[0, 2, 1, 2] == pytest.approx(phi[0, 2] + phi[2, 1] - phi[0, 1] - phi[2, 2], abs=1e-12)
+    result = gqsim.simulate(two_body_protocol(branch_count=3, points=3))
+    assert abs(result.summary["entangling_phase"]["largest_pair_phase_rad"]) == pytest.approx(np.abs(matrix).max())
