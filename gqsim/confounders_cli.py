@@ -40,7 +40,7 @@ def budget_command(protocol: Path, share_limit: float | None, as_json: bool):
     coupling [N/m] and the engine's maximum E_N [nat] per force. Exit status 3 when a
     non-gravitational share exceeds the limit.
     """
-    from gqsim.confounders import force_budget
+    from gqsim.force_budget import force_budget
 
     table = force_budget(_read_toml(protocol), share_limit=share_limit, source=str(protocol))
     click.echo(json.dumps(table.to_json_dict()) if as_json else table.as_text())

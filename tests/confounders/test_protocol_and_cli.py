@@ -16,12 +16,11 @@ from gqsim.confounders import (
     Coulomb,
     DipoleDipole,
     RetardedCasimirPolder,
-    force_budget,
     potentials_from_tables,
-    superposition_budget,
     with_interaction_keys,
 )
 from gqsim.errors import PhysicsError, ProtocolError
+from gqsim.force_budget import force_budget, superposition_budget
 from gqsim.potentials import NewtonianGravity
 from gqsim.protocol import schema_for
 
