@@ -68,6 +68,9 @@ __all__ = [
     "ChargeInducedDipole",
     "DipoleDipole",
     "pair_energy_at",
+    "ConductingScreen",
+    "screen_energy_j",
+    "screen_branch_phases_rad",
     "pair_hessian_at",
     "ForceRow",
     "Attribution",
@@ -607,7 +610,9 @@ class ForceRow:
 class Attribution:
     """Per-force entangling phase (or coupling), share and flag; see the module docstring.
 
-    ``rows`` has one :class:`ForceRow` per potential then one labelled ``"all"``.
+    ``rows`` has one :class:`ForceRow` per potential then one labelled ``"all"``;
+    ``local_phases_rad`` maps a body label to its local (non-entangling) branch phases [rad],
+    e.g. from a conducting screen's image terms.
     """
 
     family: str
@@ -619,6 +624,7 @@ class Attribution:
     non_gravitational_share: float
     flagged: bool
     notes: tuple[str, ...] = ()
+    local_phases_rad: Mapping[str, Sequence[float]] = field(default_factory=dict)
 
     def row(self, label: str) -> ForceRow:
         """The row with ``label``; ProtocolError listing the labels if absent."""
@@ -634,6 +640,7 @@ class Attribution:
             "entanglement_unit": self.entanglement_unit, "share_limit": self.share_limit,
             "non_gravitational_share": self.non_gravitational_share, "flagged": self.flagged,
             "notes": list(self.notes),
+            "local_phases_rad": {k: [float(x) for x in v] for k, v in self.local_phases_rad.items()},
             "rows": [{"label": r.label, "value": r.value, "share": r.share, "log_negativity": r.log_negativity,
                       "exceeds_limit": r.exceeds_limit, **{k: float(v) for k, v in r.extra.items()}}
                      for r in self.rows],
@@ -838,6 +845,98 @@ def oscillator_attribution(potentials: Sequence, *, separation_m, mass_a_kg: flo
     return Attribution(family="oscillators", value_name="coupling", value_unit="N/m", entanglement_unit="nat",
                        rows=tuple(rows), share_limit=limit, non_gravitational_share=non_grav,
                        flagged=any(flags), notes=tuple(notes))
+
+
+# ----------------------------------------------------------------------------- conducting screen
+
+@dataclass(frozen=True, kw_only=True)
+class ConductingScreen:
+    """An ideal (infinite, grounded, perfectly conducting) plate between the two bodies.
+
+    It cancels every electromagnetic field across it, so no electromagnetic pair potential acts
+    between bodies on opposite sides; each body interacts only with its own image, which
+    depends on that body's position alone: a local branch phase, never an entangling one.
+
+    Parameters
+    ----------
+    point_m : (3,) a point on the plate's mid-plane [m]
+    normal : (3,) plate normal (normalised here)
+    thickness_m : plate thickness [m]; each body sees the face on its side
+    """
+
+    point_m: np.ndarray
+    normal: np.ndarray
+    thickness_m: float = 0.0
+
+    def __post_init__(self):
+        object.__setattr__(self, "point_m", _vector3("screen.point_m", self.point_m, "point on the plate in m"))
+        normal = _vector3("screen.normal", self.normal, "plate normal")
+        if np.linalg.norm(normal) == 0:
+            raise ProtocolError("screen.normal", normal.tolist(), "must be a non-zero 3-vector")
+        unit = normal / np.linalg.norm(normal)
+        unit.setflags(write=False)
+        object.__setattr__(self, "normal", unit)
+        thickness = _finite("screen.thickness_m", self.thickness_m, "m")
+        if thickness < 0:
+            raise ProtocolError("screen.thickness_m", self.thickness_m, "must be >= 0 m")
+
+    def gap_m(self, positions_m, radius_m: float = 0.0) -> np.ndarray:
+        """Distance from each centre (..., 3) [m] to the nearest face [m]; PhysicsError when a
+        sphere of ``radius_m`` touches or crosses the plate."""
+        z = np.abs((np.asarray(positions_m, float) - self.point_m) @ self.normal) - 0.5 * self.thickness_m
+        if np.any(z <= radius_m):
+            raise PhysicsError("screen", f"gap {float(np.min(z)):.3g} m",
+                               f"a body (radius {radius_m:g} m) touches or crosses the conducting plate")
+        return z
+
+    def side(self, positions_m) -> np.ndarray:
+        """+1 or -1: which side of the plate each position (..., 3) is on."""
+        return np.sign((np.asarray(positions_m, float) - self.point_m) @ self.normal)
+
+
+def screen_energy_j(screen: ConductingScreen, positions_m, *, radius_m: float | None = None,
+                    permittivity: float | None = None, charge_c: float = 0.0) -> np.ndarray:
+    """Energy of one body with its own image in the plate at centre positions (..., 3) [J].
+
+    Sum of the retarded Casimir-Polder sphere-plate term -3 hbar c a / (8 pi z^4) (the
+    atom-conducting-plane result of [CasimirPolder1948], quoted in its abstract; a = R^3
+    (eps-1)/(eps+2); needs z >> R and a dielectric) and the image-charge term
+    -q^2 / (16 pi eps0 z) (method of images, Sect. 2.1 of [Jackson1999], from memory).
+    Either term is skipped when its inputs are absent (no radius/permittivity, zero charge).
+    """
+    z = screen.gap_m(positions_m, radius_m or 0.0)
+    energy = np.zeros_like(z)
+    if radius_m is not None and permittivity is not None:
+        alpha = polarisability_volume_m3(radius_m, permittivity)
+        energy = energy - 3.0 * hbar * c * alpha / (8.0 * math.pi * z**4)
+    q = _finite("charge_c", charge_c, "C")
+    if q:
+        energy = energy - 0.25 * _COULOMB_K * q * q / z
+    return energy
+
+
+def screen_branch_phases_rad(screen: ConductingScreen, centre_m, offsets_m, *, hold_s: float, split_s: float = 0.0,
+                             recombine_s: float = 0.0, radius_m: float | None = None,
+                             permittivity: float | None = None, charge_c: float = 0.0) -> np.ndarray:
+    """(n,) local branch phases -(1/hbar) int U_image dt [rad] over split-hold-recombine.
+
+    Same path convention and quadrature as :func:`branch_phase_matrix_rad`. The phases are
+    local (one body's branches only), so they leave the entangling phase untouched; their
+    spread is what plate-distance jitter would turn into dephasing.
+    """
+    centre = np.asarray(centre_m, float)
+    offsets = np.asarray(offsets_m, float)
+
+    def energies(sigma):
+        return screen_energy_j(screen, centre + sigma * offsets, radius_m=radius_m, permittivity=permittivity,
+                               charge_c=charge_c)
+
+    integral = hold_s * energies(1.0)
+    ramp = split_s + recombine_s
+    if ramp > 0:
+        sig = (_GL_X + 1.0) / 2.0
+        integral = integral + ramp * sum(w / 2.0 * energies(s) for s, w in zip(sig, _GL_W))
+    return -np.asarray(integral) / hbar
 
 
 # ----------------------------------------------------------------------------- safe distances

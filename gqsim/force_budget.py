@@ -20,6 +20,7 @@ from gqsim.confounders import (
     DEFAULT_SHARE_LIMIT,
     ELECTROMAGNETIC_LABELS,
     Attribution,
+    ConductingScreen,
     DipoleDipole,
     ForceRow,
     _body_table,
@@ -27,6 +28,7 @@ from gqsim.confounders import (
     _shares,
     fragment,
     potentials_from_tables,
+    screen_branch_phases_rad,
     superposition_attribution,
 )
 from gqsim.errors import PhysicsError, ProtocolError
@@ -88,7 +90,7 @@ def superposition_budget(data: Mapping[str, Any], *, share_limit: float | None =
     proto = parse_protocol(family, source=source)
     if proto.family != "superposition":
         raise ProtocolError("family", proto.family, "the force budget reads 'superposition' protocols "
-                                                    "(oscillators: call oscillator_attribution)")
+                                                    "(oscillators: use oscillator_budget)")
     setup = build_superposition_setup(proto)
     interactions = extra.get("interactions")
     tables = [dict(t) for t in data["bodies"]]
@@ -96,13 +98,52 @@ def superposition_budget(data: Mapping[str, Any], *, share_limit: float | None =
                                         radii_m=[b.radius_m for b in setup.bodies])
     limit = share_limit if share_limit is not None else (interactions or {}).get("share_limit", DEFAULT_SHARE_LIMIT)
     notes = []
+    t = setup.timing
+    local: dict[str, list[float]] = {}
     if interactions and interactions.get("conducting_screen"):
         dropped = [n for n in interactions["include"] if n in ELECTROMAGNETIC_LABELS]
         notes.append("ideal conducting screen: " + (", ".join(dropped) or "no electromagnetic force")
                      + " removed between the bodies; image terms are local and do not entangle")
+        local, screen_notes = _screen_local_phases(setup, tables, interactions)
+        notes.extend(screen_notes)
+    table = superposition_attribution(potentials, setup.bodies, hold_s=t.hold_s, split_s=t.split_s,
+                                      recombine_s=t.recombine_s, share_limit=limit, notes=notes)
+    return replace(table, local_phases_rad=local)
+
+
+def _screen_local_phases(setup, tables, interactions) -> tuple[dict[str, list[float]], list[str]]:
+    """Plate through the midpoint of the centres, normal along the line of centres: each body's
+    local branch phases from its image (:func:`gqsim.confounders.screen_branch_phases_rad`)."""
+    a, b = setup.bodies
+    line = b.centre_m - a.centre_m
+    screen = ConductingScreen(point_m=0.5 * (a.centre_m + b.centre_m), normal=line,
+                              thickness_m=interactions.get("screen_thickness_m", 0.0))
+    include = interactions["include"]
     t = setup.timing
-    return superposition_attribution(potentials, setup.bodies, hold_s=t.hold_s, split_s=t.split_s,
-                                     recombine_s=t.recombine_s, share_limit=limit, notes=notes)
+    local, notes = {}, []
+    sides = []
+    for body, tab in zip(setup.bodies, tables):
+        positions = body.centre_m + body.offsets_m
+        side = screen.side(np.vstack([body.centre_m, positions]))
+        if np.any(side != side[0]) or side[0] == 0:
+            raise PhysicsError("interactions.conducting_screen", True,
+                               f"the branches of {body.label} lie on both sides of (or in) the mid-plane plate")
+        sides.append(side[0])
+        eps = tab.get("relative_permittivity")
+        if eps is None and "material" in tab:
+            from gqsim.materials import material
+            eps = material(tab["material"]).relative_permittivity
+        use_cp = "casimir_polder" in include and eps is not None and body.radius_m is not None
+        charge = float(tab.get("charge_c", 0.0)) if "coulomb" in include else 0.0
+        phases = screen_branch_phases_rad(screen, body.centre_m, body.offsets_m, hold_s=t.hold_s, split_s=t.split_s,
+                                          recombine_s=t.recombine_s, radius_m=body.radius_m if use_cp else None,
+                                          permittivity=eps if use_cp else None, charge_c=charge)
+        local[body.label] = [float(x) for x in phases]
+        notes.append(f"screen: local branch phases of {body.label} span {float(np.ptp(phases)):.4g} rad "
+                     "(image terms; no entanglement, but plate-distance jitter turns them into dephasing)")
+    if sides[0] == sides[1]:
+        raise PhysicsError("interactions.conducting_screen", True, "both bodies are on the same side of the plate")
+    return local, notes
 
 
 def _largest(block: np.ndarray) -> float:

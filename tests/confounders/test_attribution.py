@@ -218,3 +218,62 @@ def test_attribution_phases_agree_with_the_superposition_model_builder():
         ours = branch_phase_matrix_rad(pot, a.centre_m, a.offsets_m, b.centre_m, b.offsets_m, hold_s=2.0,
                                        split_s=0.25, recombine_s=0.4)
         np.testing.assert_allclose(ours, theirs, rtol=1e-10, atol=0)  # both quadratures converge to ~1e-12
+
+
+# ----------------------------------------------------------------------------- conducting screen
+
+def test_screen_image_energies_are_the_1948_plate_law_and_the_image_charge():
+    from scipy.constants import c
+
+    from gqsim.confounders import ConductingScreen, screen_energy_j
+
+    screen = ConductingScreen(point_m=[0, 0, 0], normal=[2.0, 0, 0], thickness_m=2e-6)
+    z = np.array([[51e-6, 3e-6, 0], [-101e-6, 0, 7e-6]])  # gaps 50 um and 100 um to the faces
+    gaps = np.array([50e-6, 100e-6])
+    np.testing.assert_allclose(screen.gap_m(z), gaps, rtol=ROUNDING)
+    # Casimir & Polder 1948 abstract: atom-conducting plane -3 hbar c alpha/(8 pi R^4).
+    alpha = 1e-18 * 4.7 / 7.7
+    cp = screen_energy_j(screen, z, radius_m=1e-6, permittivity=5.7)
+    np.testing.assert_allclose(cp, -3 * hbar * c * alpha / (8 * math.pi * gaps**4), rtol=ROUNDING)
+    # Method of images (Jackson Sect. 2.1): image -q at distance 2z, energy (1/2) q V_image.
+    charged = screen_energy_j(screen, z, charge_c=2 * e)
+    image = 0.5 * (2 * e) * (-2 * e) / (4 * math.pi * epsilon_0 * 2 * gaps)
+    np.testing.assert_allclose(charged, image, rtol=ROUNDING)
+    with pytest.raises(PhysicsError, match="plate"):
+        screen_energy_j(screen, [1.5e-6, 0, 0], radius_m=1e-6, permittivity=5.7)
+
+
+def test_local_screen_phases_never_entangle():
+    # phi_ab -> phi_ab + f_a + g_b leaves theta and E_N unchanged (theta's double difference).
+    rng = np.random.default_rng(7)
+    phi = rng.uniform(-3, 3, (3, 3))
+    f, g = rng.uniform(-50, 50, 3), rng.uniform(-50, 50, 3)
+    shifted = phi + f[:, None] + g[None, :]
+    np.testing.assert_allclose(entangling_phase_matrix_rad(shifted), entangling_phase_matrix_rad(phi), atol=1e-12)
+    amps = np.ones(3) / math.sqrt(3)
+    assert pure_log_negativity_bits(amps, amps, shifted) == pytest.approx(pure_log_negativity_bits(amps, amps, phi),
+                                                                          rel=1e-10)
+
+
+def test_screened_in_line_budget_reports_local_phases():
+    from scipy.constants import c
+
+    from gqsim.force_budget import superposition_budget
+
+    data = {"schema_version": 1, "family": "superposition",
+            "arrangement": {"style": "in_line", "centre_distance_m": 300e-6, "branch_span_m": 100e-6},
+            "bodies": [{"label": "Tern", "radius_m": 1e-6, "material": "diamond"},
+                       {"label": "Plover", "radius_m": 1e-6, "material": "diamond"}],
+            "timing": {"hold_s": 1.0},
+            "interactions": {"include": ["gravity", "casimir_polder"], "conducting_screen": True}}
+    table = superposition_budget(data)
+    assert [r.label for r in table.rows] == ["gravity", "all"]
+    # Tern's branches sit 150 -/+ 50 um from the plate: phases 3 hbar c a t/(8 pi hbar z^4).
+    alpha = 1e-18 * 4.7 / 7.7
+    expected = [3 * c * alpha * 1.0 / (8 * math.pi * z**4) for z in (200e-6, 100e-6)]
+    np.testing.assert_allclose(table.local_phases_rad["Tern"], expected, rtol=ROUNDING)
+    assert table.to_json_dict()["local_phases_rad"]["Plover"] == pytest.approx(expected[::-1], rel=ROUNDING)
+    # Side by side the branches are equidistant from the plate: no spread at all.
+    data["arrangement"]["style"] = "side_by_side"
+    side = superposition_budget(data)
+    assert np.ptp(side.local_phases_rad["Tern"]) == pytest.approx(0.0, abs=1e-12)
