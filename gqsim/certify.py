@@ -245,6 +245,7 @@ class CertificationReport:
     options: CertifyOptions
     checks: Mapping[str, MonteCarloCheck] = field(default_factory=dict)
     skipped: Mapping[str, str] = field(default_factory=dict)
+    frames: Mapping[str, dict] = field(default_factory=dict)
 
     def rows(self) -> list[dict]:
         """One summary row per witness (at its best time, and at the time of maximum entanglement)."""
@@ -271,6 +272,8 @@ class CertificationReport:
             if peak_i is not None:
                 row["lab_time_at_peak_s"] = float(plan.lab_time_s[peak_i])
                 row["total_at_peak"] = float(plan.total[peak_i])
+            if name in self.frames:
+                row["frames_at_best_time"] = self.frames[name]
             if name in self.checks:
                 c = self.checks[name]
                 row["monte_carlo"] = {"trials": c.trials, "seed": c.seed, "agrees": c.agrees,
@@ -368,6 +371,7 @@ def certify_result(result: Result, options: CertifyOptions | None = None, *,
     plans: dict[str, RepetitionPlan | DuanPlan] = {}
     skipped: dict[str, str] = {}
     checks: dict[str, MonteCarloCheck] = {}
+    frames: dict[str, dict] = {}
     if result.states is not None and len(result.dims) == 2:
         dims = tuple(int(d) for d in result.dims)
         states = np.asarray(result.states)
@@ -387,6 +391,12 @@ def certify_result(result: Result, options: CertifyOptions | None = None, *,
             plans[w.name] = plan_repetitions(setting_table(w, states, options.readout), times, **options.plan_kwargs)
         if "duan" in options.builtin:
             skipped["duan"] = "applies to oscillator runs"
+        ppt = plans.get("optimal_ppt")
+        if ppt is not None and np.any(np.isfinite(ppt.lab_time_s)):
+            w = optimal_ppt_witness(states[best_measurement_time(times, ppt.total, ppt.overhead_s)[0]], dims)
+            # the local rotations the experiment applies before a branch-basis readout
+            frames["optimal_ppt"] = {"frame_a": _complex_json(w.frame("a")), "frame_b": _complex_json(w.frame("b")),
+                                     "expression": w.expression}
         if options.trials:
             for name, plan in plans.items():
                 if not np.any(np.isfinite(plan.lab_time_s)):
@@ -422,7 +432,11 @@ def certify_result(result: Result, options: CertifyOptions | None = None, *,
         raise PhysicsError("witnesses.builtin", list(options.builtin), "no witness applies to this run")
     peak_measure, peak_time = _peak(result)
     return CertificationReport(times_s=times, plans=plans, peak_measure=peak_measure, peak_time_s=peak_time,
-                               options=options, checks=checks, skipped=skipped)
+                               options=options, checks=checks, skipped=skipped, frames=frames)
+
+
+def _complex_json(matrix: np.ndarray) -> dict:
+    return {"real": np.real(matrix).tolist(), "imag": np.imag(matrix).tolist()}
 
 
 def oscillator_covariances(protocol) -> tuple[np.ndarray, np.ndarray]:

@@ -53,6 +53,11 @@ __all__ = [
 ]
 
 
+#: Margins below this, relative to the witness scale sum_t |c_t|, are float64 round-off of
+#: O(1) expectation values (eps ~ 2e-16 times a few matrix products), not entanglement.
+MARGIN_RTOL = 1e-12
+
+
 def sigma_multiplier(confidence: float | None = None, *, sigmas: float | None = None,
                      power: float | None = None) -> float:
     """Number of standard deviations k required between the expected value and the bound.
@@ -202,12 +207,14 @@ def plan_repetitions(table: SettingTable, times_s=None, *, confidence: float | N
     if times.shape != (n,):
         raise ProtocolError("times_s", times.shape, f"must have one time per state ({n})")
     margin = table.witness.margin(values)
+    scale = max(1.0, sum(abs(t.coefficient) for t in table.witness.terms))
+    usable = np.where(margin > MARGIN_RTOL * scale, margin, 0.0)
     var = table.setting_variances
     eta = table.detection_efficiency
     if split == "optimal":
-        per = repetitions_optimal_split(margin, var, k, eta)
+        per = repetitions_optimal_split(usable, var, k, eta)
     else:
-        per = np.repeat(repetitions_equal_split(margin, var, k, eta)[:, None], var.shape[1], axis=1)
+        per = np.repeat(repetitions_equal_split(usable, var, k, eta)[:, None], var.shape[1], axis=1)
     total = per.sum(axis=1)
     one_shot = np.sqrt(np.maximum(var, 0.0))
     return RepetitionPlan(witness=table.witness.name, times_s=times, values=values, bound=table.witness.bound,

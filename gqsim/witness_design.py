@@ -203,6 +203,11 @@ class Witness:
     The state is certified entangled when its expectation value lies strictly below
     (``entangled_if = "below"``) or above (``"above"``) ``bound``; every separable
     state lies on the other side.
+
+    ``frame_a``/``frame_b`` are optional local unitaries (columns = the frame's basis
+    vectors in the branch basis): the local observables are then F l F^dag, i.e. each
+    body is rotated by F^dag before a branch-basis readout. Local unitaries map separable
+    states to separable states, so the bound is unchanged. ``None`` means the branch frame.
     """
 
     name: str
@@ -211,6 +216,8 @@ class Witness:
     bound: float
     entangled_if: str = "below"
     source: str = ""
+    frame_a: np.ndarray | None = field(default=None, compare=False, repr=False)
+    frame_b: np.ndarray | None = field(default=None, compare=False, repr=False)
 
     def __post_init__(self):
         if len(self.dims) != 2 or any(int(d) < 2 for d in self.dims):
@@ -221,14 +228,33 @@ class Witness:
         if not np.isfinite(self.bound):
             raise ProtocolError("separable bound", self.bound, "must be a finite real number")
         object.__setattr__(self, "terms", tuple(self.terms))
+        for side, d in zip(("a", "b"), self.dims):
+            key = f"frame_{side}"
+            frame = getattr(self, key)
+            if frame is None:
+                continue
+            frame = np.array(frame, dtype=complex)
+            if frame.shape != (d, d) or not np.allclose(frame.conj().T @ frame, np.eye(d), atol=_HERMITIAN_ATOL):
+                raise ProtocolError(key, frame.shape, f"must be a ({d}, {d}) unitary matrix")
+            frame.setflags(write=False)
+            object.__setattr__(self, key, frame)
+
+    def frame(self, side: str) -> np.ndarray:
+        """The (d, d) frame unitary of body ``side`` ("a" or "b"); identity for the branch frame."""
+        d = self.dims[0 if side == "a" else 1]
+        f = getattr(self, f"frame_{side}")
+        return np.eye(d, dtype=complex) if f is None else f
 
     def operator(self) -> np.ndarray:
-        """The (d_a d_b, d_a d_b) Hermitian matrix of the witness."""
+        """The (d_a d_b, d_a d_b) Hermitian matrix of the witness (frames applied)."""
         da, db = self.dims
         out = np.zeros((da * db, da * db), complex)
         for t in self.terms:
             out += t.coefficient * np.kron(local_operator(t.factor_a, da), local_operator(t.factor_b, db))
-        return out
+        if self.frame_a is None and self.frame_b is None:
+            return out
+        f = np.kron(self.frame("a"), self.frame("b"))
+        return f @ out @ f.conj().T
 
     def value(self, states: np.ndarray) -> np.ndarray:
         """Tr(W rho) for one (D, D) state or a stack (n, D, D); real."""
@@ -339,7 +365,7 @@ def _check_state(rho: np.ndarray, dims: tuple[int, int]) -> np.ndarray:
     return rho
 
 
-def optimal_ppt_witness(rho: np.ndarray, dims: tuple[int, int]) -> Witness:
+def optimal_ppt_witness(rho: np.ndarray, dims: tuple[int, int], frame: str = "schmidt") -> Witness:
     """The witness W = (|e><e|)^{T_B} built from the partial transpose of ``rho``.
 
     |e> is the eigenvector of rho^{T_B} with the most negative eigenvalue lambda_min. Then
@@ -348,17 +374,35 @@ def optimal_ppt_witness(rho: np.ndarray, dims: tuple[int, int]) -> Witness:
     from the PPT criterion in Sec. 3.3 of [Guhne2009] (section number from memory). Tr W = 1.
     Bound 0, entangled below. If rho^{T_B} has no negative eigenvalue the returned witness
     still has the smallest achievable value but cannot detect ``rho`` (value >= 0).
+
+    ``frame = "schmidt"`` (default) writes W in the local frames of the Schmidt decomposition
+    |e> = sum_k s_k |a_k> |b_k> (singular value decomposition of the coefficient matrix
+    [NielsenChuang2010, Theorem 2.7]). There W = sum_kl s_k s_l |k><l| (x) |l><k| with frames
+    F_a = (a_k) and F_b = (conj b_k), which expands into s_k^2 |kk><kk| terms (one setting) and
+    (s_k s_l / 2)(S[k,l] (x) S[k,l] + A[k,l] (x) A[k,l]) for k < l (two settings each): at most
+    d(d - 1) + 1 settings (3 for qubits, 7 for qutrits) instead of up to (d^2 - 1)^2 in the
+    branch frame (``frame = "branch"``). Both give the same operator.
     """
     dims = tuple(int(d) for d in dims)
     rho = _check_state(rho, dims)
     if rho.ndim != 2:
         raise ProtocolError("state shape", rho.shape, "optimal_ppt_witness takes one (D, D) density matrix")
+    if frame not in ("schmidt", "branch"):
+        raise ProtocolError("frame", frame, "must be 'schmidt' or 'branch'")
     pt = partial_transpose(0.5 * (rho + rho.conj().T), dims, subsystem=1)
     _, vecs = np.linalg.eigh(pt)
     e = vecs[:, 0]
     w = partial_transpose(np.outer(e, e.conj()), dims, subsystem=1)
-    return witness_from_operator(w, dims, bound=0.0, entangled_if="below", name="optimal_ppt",
-                                 source="[Guhne2009] PPT witness")
+    if frame == "branch":
+        return witness_from_operator(w, dims, bound=0.0, entangled_if="below", name="optimal_ppt",
+                                     source="[Guhne2009] PPT witness")
+    # e_ij = sum_k u_ik s_k vh_kj: a_k = u[:, k], b_k = vh[k, :]; body B's frame is conj(b_k).
+    u, _, vh = np.linalg.svd(e.reshape(dims))
+    fa, fb = u, vh.conj().T
+    f = np.kron(fa, fb)
+    local = f.conj().T @ w @ f
+    return Witness(name="optimal_ppt", dims=dims, terms=decompose(local, dims), bound=0.0, entangled_if="below",
+                   source="[Guhne2009] PPT witness, Schmidt frames", frame_a=fa, frame_b=fb)
 
 
 def spin_correlation_witness(sign: int = 1) -> Witness:
@@ -568,6 +612,7 @@ def setting_table(witness: Witness, states: np.ndarray, readout: ReadoutModel | 
     sum_t c_t g_a^t(i) g_b^t(j), g = lam @ G, lam the eigenvalues of the term's factor in the
     setting basis and G the readout weights; its mean is the setting's share of Tr(W rho)
     (exactly, when correcting) [NielsenChuang2010, Sec. 2.2.5 on projective measurements].
+    With witness frames F_a, F_b the setting basis is (F_a U_a) (x) (F_b U_b).
     """
     readout = readout or ReadoutModel()
     da, db = witness.dims
@@ -577,10 +622,11 @@ def setting_table(witness: Witness, states: np.ndarray, readout: ReadoutModel | 
     m_a, m_b = readout.assignment_matrix("a", da), readout.assignment_matrix("b", db)
     g_a, g_b = readout.estimator_weights("a", da), readout.estimator_weights("b", db)
     probs, values = [], []
+    frame_a, frame_b = witness.frame("a"), witness.frame("b")
     for s in settings:
         u_a = _basis_unitary(s.basis_a, da)
         u_b = _basis_unitary(s.basis_b, db)
-        u = np.kron(u_a, u_b)
+        u = np.kron(frame_a @ u_a, frame_b @ u_b)
         p = np.real(np.einsum("ki,nkl,li->ni", u.conj(), stack, u))
         p = np.clip(p, 0.0, None)
         p /= p.sum(axis=1, keepdims=True)

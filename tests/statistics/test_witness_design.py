@@ -12,6 +12,7 @@ from gqsim.errors import ProtocolError
 from gqsim.witness_design import (
     ReadoutModel,
     decompose,
+    group_settings,
     local_operator,
     local_operator_names,
     optimal_ppt_witness,
@@ -126,6 +127,23 @@ def test_ppt_witness_sign_iff_npt_and_nonnegative_on_separable(seed, dims, rank)
     assert w.value(sigma) >= -ATOL
 
 
+@pytest.mark.parametrize("dims", [(2, 2), (2, 3), (3, 3), (3, 2)])
+def test_schmidt_frame_gives_same_operator_with_few_settings(dims):
+    # Schmidt decomposition (Nielsen & Chuang Thm 2.7): in the frames of |e>'s Schmidt bases
+    # W = sum_kl s_k s_l |k><l| (x) |l><k|, i.e. one diagonal setting plus S@S and A@A per pair
+    # k < l: at most d(d-1) + 1 settings, d = min(d_a, d_b); same operator as the branch frame.
+    rng = np.random.default_rng(sum(dims))
+    d = min(dims)
+    for _ in range(5):
+        rho = random_density(rng, dims[0] * dims[1], 2)
+        branch = optimal_ppt_witness(rho, dims, frame="branch")
+        schmidt = optimal_ppt_witness(rho, dims)
+        np.testing.assert_allclose(schmidt.operator(), branch.operator(), atol=ATOL)
+        assert len(group_settings(schmidt)[1]) <= d * (d - 1) + 1
+        table = setting_table(schmidt, rho)
+        assert table.expected_values[0] == pytest.approx(_qutip_expect(branch.operator(), rho, dims), abs=ATOL)
+
+
 # ---- fixed and user witnesses ----------------------------------------------------------
 
 def test_spin_witness_on_phase_state_frames():
@@ -190,7 +208,7 @@ def test_setting_means_sum_to_expectation_value(dims):
     # readout errors (unbiased inverse-assignment estimator, common practice).
     rng = np.random.default_rng(11)
     rho = random_density(rng, dims[0] * dims[1])
-    w = optimal_ppt_witness(random_density(rng, dims[0] * dims[1], 1), dims)
+    w = optimal_ppt_witness(random_density(rng, dims[0] * dims[1], 1), dims, frame="branch")
     ref = _qutip_expect(w.operator(), rho, dims)
     readout = ReadoutModel(assignment_fidelity_a=0.93, assignment_fidelity_b=[0.9] * dims[1],
                            detection_efficiency_a=0.6)
