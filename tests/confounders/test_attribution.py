@@ -5,6 +5,8 @@ from types import SimpleNamespace
 
 import numpy as np
 import pytest
+from hypothesis import given
+from hypothesis import strategies as st
 from scipy.constants import G, e, epsilon_0, hbar
 
 from gqsim.confounders import (
@@ -277,3 +279,22 @@ def test_screened_in_line_budget_reports_local_phases():
     data["arrangement"]["style"] = "side_by_side"
     side = superposition_budget(data)
     assert np.ptp(side.local_phases_rad["Tern"]) == pytest.approx(0.0, abs=1e-12)
+
+
+def test_combined_entanglement_is_the_closed_form_of_the_total_phase():
+    # Shared references §1.4: for the equal-amplitude phase state C = |sin(theta/2)|, E_N = log2(1 + C).
+    table = superposition_attribution([GRAV, CP], bodies("in_line", 450e-6, 250e-6), hold_s=2.5)
+    theta = table.row("all").value
+    assert table.row("all").log_negativity == pytest.approx(math.log2(1 + abs(math.sin(theta / 2))), rel=1e-10)
+
+
+@given(st.lists(st.floats(-10, 10), min_size=9, max_size=9), st.lists(st.floats(0.1, 1.0), min_size=6, max_size=6))
+def test_log_negativity_bounds_and_local_invariance(phases, moduli):
+    # 0 <= E_N <= log2 d for any pure state of two qutrits (Vidal & Werner 2002); local phases
+    # (f_a + g_b) change nothing.
+    phi = np.array(phases).reshape(3, 3)
+    a, b = np.array(moduli[:3], complex), np.array(moduli[3:], complex)
+    value = pure_log_negativity_bits(a, b, phi)
+    assert -1e-12 <= value <= math.log2(3) + 1e-12
+    shifted = phi + np.array([0.3, -1.0, 2.0])[:, None] + np.array([5.0, 0.1, -0.7])[None, :]
+    assert pure_log_negativity_bits(a, b, shifted) == pytest.approx(value, abs=1e-10)
