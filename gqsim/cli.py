@@ -25,6 +25,7 @@ COMMAND_MODULES: tuple[str, ...] = (
     "gqsim.confounders_cli:forces_group",
     "gqsim.certify_cli:certify_command",
     "gqsim.budget_cli:noise_group",
+    "gqsim.sweep_cli:scan_group",
 )
 
 

@@ -163,6 +163,10 @@ _ENTRIES = [
     Reference(key="CODATA2018", authors="E. Tiesinga et al.",
               title="CODATA recommended values of the fundamental physical constants: 2018",
               journal="Rev. Mod. Phys. 93, 025010", year=2021, identifier="doi:10.1103/RevModPhys.93.025010"),
+    Reference(key="Brent1973", authors="R. P. Brent",
+              title="Algorithms for Minimization without Derivatives (Ch. 4: root finding)",
+              journal="Prentice-Hall, Englewood Cliffs NJ", year=1973, identifier="ISBN 0-13-022335-2",
+              from_memory=True),
 ]
 
 REFERENCES: dict[str, Reference] = {entry.key: entry for entry in _ENTRIES}

@@ -1,0 +1,101 @@
+"""One-by-one route: build the protocol of each grid point, run ``gqsim.simulate`` and read
+the figures of merit off its :class:`~gqsim.result.Result`. Works for every family; the
+batched route is checked against it.
+
+Figures that do not apply to a family are stored as NaN and listed in the dataset
+attribute ``not_applicable`` (never silently: the status of the point is still "done").
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+
+from gqsim.errors import GqsimError
+from gqsim.measures import partial_transpose
+from gqsim.pipeline import build, simulate
+from gqsim.protocol import Protocol, parse_protocol
+
+__all__ = ["evaluate_point", "NOT_APPLICABLE"]
+
+#: family -> figures stored as NaN because the family does not define them
+NOT_APPLICABLE = {
+    "superposition": (),
+    "oscillators": ("entangling_rate_rad_s", "dephasing_threshold_per_s", "dominant_noise"),
+}
+
+
+def _with_log_negativity(protocol: Protocol) -> Protocol:
+    """Superposition protocols may list their own measures; the sweep needs E_N among them."""
+    measures = protocol.data.get("output", {}).get("measures")
+    if protocol.family != "superposition" or measures is None or "log_negativity" in measures:
+        return protocol
+    data = protocol.to_dict()
+    data["output"]["measures"] = [*measures, "log_negativity"]
+    return parse_protocol(data, source=protocol.source)
+
+
+def evaluate_point(protocol: Protocol) -> dict:
+    """Figures of merit of one protocol; ``dominant_noise`` as an index into NOISE_SOURCES.
+
+    Raises the GqsimError of the failing stage for an invalid point (the runner records it).
+    """
+    from gqsim.sweeps.batched import NOISE_SOURCES, first_near_max
+
+    protocol = _with_log_negativity(protocol)
+    result = simulate(protocol)
+    times = result.times_s
+    en = np.asarray(result.series["log_negativity"])
+    k = int(first_near_max(en))
+    summary = result.summary.get("log_negativity", {})
+    entangled = summary.get("signals_entanglement")
+    if entangled is None:
+        entangled = bool(np.any(en > 0))
+    out = {
+        "max_log_negativity": float(en[k]),
+        "time_of_max_s": float(times[k]),
+        "entangled": int(bool(entangled)),
+        "min_pt_eigenvalue": math.nan,
+        "entangling_rate_rad_s": math.nan,
+        "dephasing_threshold_per_s": math.nan,
+        "dominant_noise": -1,
+    }
+    if protocol.family == "superposition":
+        states = result.states
+        pt = partial_transpose(states, result.dims)
+        lam = np.linalg.eigvalsh(0.5 * (pt + pt.conj().transpose(0, 2, 1)))[:, 0]
+        out["min_pt_eigenvalue"] = float(np.min(lam[times > 0]))
+        phase = result.summary["entangling_phase"]
+        out["entangling_rate_rad_s"] = float(phase["analytic_rate_rad_s"])
+        out["dephasing_threshold_per_s"] = float(phase["dephasing_threshold_per_s"])
+        out["dominant_noise"] = NOISE_SOURCES.index(_dominant_noise(protocol))
+    elif "simon_min_eigenvalue" in result.series:
+        out["min_pt_eigenvalue"] = float(np.min(np.asarray(result.series["simon_min_eigenvalue"])[times > 0]))
+    return out
+
+
+def _dominant_noise(protocol: Protocol) -> str:
+    """Name of the decoherence source with the largest coherence decay rate at full split."""
+    from gqsim.channels import channel_from_spec
+
+    model = build(protocol)
+    best, best_rate = "none", 0.0
+    for i, body in enumerate(model.setup.bodies):
+        span = float(np.max(body.branch_separations_m))
+        rates = {f"bodies[{i}].dephasing": float(channel_from_spec(body.dephasing).rate_per_s(np.array(span))),
+                 f"bodies[{i}].spin": body.spin.pure_dephasing_per_s}
+        for name, rate in rates.items():
+            if rate > best_rate:
+                best, best_rate = name, rate
+    return best
+
+
+def safe_evaluate(protocol_or_error) -> tuple[dict | None, str]:
+    """(figures, "") or (None, one-line message) for a point that failed."""
+    if isinstance(protocol_or_error, GqsimError):
+        return None, str(protocol_or_error)
+    try:
+        return evaluate_point(protocol_or_error), ""
+    except GqsimError as exc:
+        return None, f"{type(exc).__name__}: {exc}"
