@@ -1,19 +1,25 @@
 """Model stage: electromagnetic pair potentials that can fake gravity's entanglement, and
 how much of the entangling phase (or coupling) each one makes.
 
-Every class here implements the central pair-potential interface of
+Every potential class here implements the central pair-potential interface of
 :mod:`gqsim.potentials` (``label``, ``energy_j(r_m)``, ``radial_derivative(r_m, order)``
-for order 1 and 2, here also 3 and 4 for the oscillators' anharmonic terms), so both model builders can add it next to gravity:
+for order 1 and 2; the power laws also give 3 and 4 for the oscillators' anharmonic
+terms), so both model builders can add it next to gravity:
 
-===========================  =======================  ==========================================
-class                        label                    U(r)
-===========================  =======================  ==========================================
-:class:`RetardedCasimirPolder`  ``casimir_polder``    -23 hbar c a1 a2 / (4 pi r^7)
-:class:`LondonVanDerWaals`   ``london_van_der_waals`` -(3/2) hbar W1 W2/(W1+W2) a1 a2 / r^6
-:class:`Coulomb`             ``coulomb``              q1 q2 / (4 pi eps0 r)
-:class:`ChargeInducedDipole` ``charge_induced_dipole`` -(q1^2 a2 + q2^2 a1) / (8 pi eps0 r^4)
-:class:`DipoleDipole`        ``dipole_dipole``        [p1.p2 - 3 (p1.n)(p2.n)] / (4 pi eps0 r^3)
-===========================  =======================  ==========================================
+==============================  ==========================  =============================================
+class                           label                       U(r)
+==============================  ==========================  =============================================
+:class:`RetardedCasimirPolder`  ``casimir_polder``          -23 hbar c a1 a2 / (4 pi r^7)  (T = 0)
+:class:`ThermalCasimirPolder`   ``casimir_polder``          Matsubara sum; -3 k_B T a1 a2 / r^6 far out
+:class:`LondonVanDerWaals`      ``london_van_der_waals``    -(3/2) hbar W1 W2/(W1+W2) a1 a2 / r^6
+:class:`Coulomb`                ``coulomb``                 q1 q2 / (4 pi eps0 r)
+:class:`ChargeInducedDipole`    ``charge_induced_dipole``   -(q1^2 a2 + q2^2 a1) / (8 pi eps0 r^4)
+:class:`DipoleDipole`           ``dipole_dipole``           [p1.p2 - 3 (p1.n)(p2.n)] / (4 pi eps0 r^3)
+==============================  ==========================  =============================================
+
+:class:`ConductingScreen` (an ideal plate between the bodies) is not a pair potential: it
+removes the electromagnetic pair terms and gives each body a local image energy
+(:func:`screen_energy_j`) whose branch phases never entangle.
 
 ``a`` is the static polarisability *volume* [m^3] of a sphere, R^3 (eps-1)/(eps+2)
 (Clausius-Mossotti; SI polarisability = 4 pi eps0 a).
