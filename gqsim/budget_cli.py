@@ -44,18 +44,19 @@ def noise_group():
               help="Also root-find the largest tolerable value of this knob (repeatable).")
 @click.option("--certify", default=None, metavar="SERIES>VALUE",
               help="What counts as certified entanglement (default witness_optimised>1 for qubits, "
-                   "log_negativity>0.01 otherwise).")
+                   "log_negativity>0 otherwise).")
 @click.option("--figure", type=click.Path(dir_okay=False, path_type=Path), default=None,
               help="Write a bar chart of the channel rates to this image file.")
 @click.option("--json", "as_json", is_flag=True, help="Print one JSON object instead of the table.")
 def budget_command(protocol: Path, knobs: tuple[str, ...], certify: str | None, figure: Path | None, as_json: bool):
-    """Rate and share of every decoherence channel of each body in a superposition PROTOCOL."""
+    """Rate and share of every decoherence channel of each body (superposition) or mode (oscillators) in PROTOCOL."""
     from dataclasses import replace
 
-    from gqsim.environment.budget import superposition_budget, tolerable_limit
+    from gqsim.environment.budget import budget as noise_budget
+    from gqsim.environment.budget import tolerable_limit
 
     data = _read(protocol)
-    budget = superposition_budget(data, source=str(protocol))
+    budget = noise_budget(data, source=str(protocol))
     cert = _certificate(certify)
     limits = tuple(tolerable_limit(data, knob, certificate=cert, source=str(protocol)) for knob in knobs)
     budget = replace(budget, limits=limits)

@@ -11,7 +11,8 @@ For a superposition protocol with an ``[environment]`` table this module
    the full simulation (closed-form or Lindblad engine with all channels) at every trial
    value and solves margin(value) = 0 with :func:`scipy.optimize.brentq` on log10(value),
    where margin = max over the time grid of a certifying series minus its threshold
-   (default: optimised spin witness > 1 for qubits, log-negativity > 0.01 for qudits).
+   (default: optimised spin witness > 1 for qubits, log-negativity > 0 for qudits and
+   oscillators; every margin must also beat the round-off floor SIGNAL_FLOOR).
 
 The search assumes the margin falls as the knob grows (true for every knob: the
 temperature knob moves only the radiation temperature and holds the gas at its own
@@ -43,7 +44,10 @@ __all__ = [
     "NoiseBudget",
     "split_environment",
     "simulate_with_environment",
+    "budget",
     "superposition_budget",
+    "oscillator_budget",
+    "oscillator_channel_table",
     "tolerable_limit",
     "plot_budget",
 ]
@@ -145,6 +149,7 @@ class NoiseBudget:
     limits: tuple[Limit, ...] = ()
     notes: tuple[str, ...] = ()
     title: str = ""
+    quantity: str = "coherence decay rate F(Delta) [1/s]"
 
     def total_per_s(self, body: str) -> float:
         return sum(line.rate_per_s for line in self.lines if line.body == body)
@@ -159,8 +164,9 @@ class NoiseBudget:
         for body in bodies:
             lines = sorted((ln for ln in self.lines if ln.body == body), key=lambda ln: -ln.rate_per_s)
             sep = lines[0].separation_m if lines else float("nan")
-            out.append(f"{body} (branch separation {sep:.4g} m): total {self.total_per_s(body):.4g} /s")
-            out.append(f"  {'channel':<28}{'rate [1/s]':>12}{'share':>9}  driver")
+            where = f"branch separation {sep:.4g} m" if math.isfinite(sep) else "trapped mode"
+            out.append(f"{body} ({where}): total {self.total_per_s(body):.4g} ({self.quantity})")
+            out.append(f"  {'channel':<28}{'rate':>12}{'share':>9}  driver")
             for ln in lines:
                 out.append(f"  {ln.source:<28}{ln.rate_per_s:>12.4g}{100 * ln.share:>8.1f}%  {ln.driver or '-'}")
         for lim in self.limits:
@@ -172,6 +178,7 @@ class NoiseBudget:
     def to_json_dict(self) -> dict:
         return {
             "title": self.title,
+            "quantity": self.quantity,
             "channels": [{"body": ln.body, "channel": ln.source, "rate_per_s": ln.rate_per_s, "share": ln.share,
                           "separation_m": ln.separation_m, "localisation_per_m2_s": ln.localisation_per_m2_s,
                           "saturation_per_s": ln.saturation_per_s, "driver": ln.driver, "reference": ln.reference}
@@ -245,8 +252,8 @@ def simulate_with_environment(protocol: Protocol, env_table: Mapping[str, Any] |
     from gqsim.result import Provenance, Result, package_versions
     from gqsim.superposition_run import measure_states
 
-    if protocol.family != "superposition":
-        raise ProtocolError("family", protocol.family, "the noise budget currently runs superposition protocols only")
+    if protocol.family == "oscillators":
+        return _simulate_oscillators(protocol, env_table)
     setup, env, spheres = _bodies_and_spheres(protocol, env_table)
     model = build_superposition_model(setup)
     extras = _environment_channels(setup, env, spheres)
@@ -268,6 +275,14 @@ def simulate_with_environment(protocol: Protocol, env_table: Mapping[str, Any] |
                             versions=package_versions())
     return Result(times_s=times, series=series, units={k: "1" for k in series}, summary={},
                   provenance=provenance, states=None, dims=model.dims, family="superposition")
+
+
+def budget(data: Mapping[str, Any], *, source: str = "<memory>") -> NoiseBudget:
+    """The noise budget of a protocol of either family (see :func:`superposition_budget`,
+    :func:`oscillator_budget`)."""
+    if data.get("family") == "oscillators":
+        return oscillator_budget(data, source=source)
+    return superposition_budget(data, source=source)
 
 
 def superposition_budget(data: Mapping[str, Any], *, source: str = "<memory>") -> NoiseBudget:
@@ -312,6 +327,8 @@ def superposition_budget(data: Mapping[str, Any], *, source: str = "<memory>") -
 
 def _knob_value(data: dict, table: dict | None, knob: str) -> float:
     if knob == "spin_dephasing":
+        if data.get("family") == "oscillators":
+            raise ProtocolError("knob", knob, "oscillator protocols have no embedded spins")
         rates = []
         for body in data["bodies"]:
             spin = body.get("spin", {})
@@ -361,14 +378,17 @@ def _with_knob(data: dict, table: dict | None, knob: str, value: float) -> tuple
 
 
 def _default_certificate(protocol: Protocol) -> Certificate:
+    if protocol.family == "oscillators":
+        # E_N >= 0 by construction; the margin subtracts SIGNAL_FLOOR, so "> 0" means "> round-off"
+        return Certificate(series="log_negativity", threshold=0.0)
     from gqsim.setup import build_superposition_setup
     from gqsim.witnesses import SEPARABLE_BOUND
 
     setup = build_superposition_setup(protocol)
     if setup.dims == (2, 2):
         return Certificate(series="witness_optimised", threshold=SEPARABLE_BOUND)
-    # qudits: no two-setting witness; ask for a log-negativity visibly above zero
-    return Certificate(series="log_negativity", threshold=0.01)
+    # qudits: no two-setting witness; any log-negativity above round-off (see SIGNAL_FLOOR)
+    return Certificate(series="log_negativity", threshold=0.0)
 
 
 def tolerable_limit(data: Mapping[str, Any], knob: str, *, certificate: Certificate | None = None,
@@ -462,9 +482,117 @@ def _margin(result, cert: Certificate) -> float:
 
 
 def _series_names(protocol: Protocol) -> tuple[str, ...]:
+    if protocol.family == "oscillators":
+        return ("log_negativity",)  # always reported by the oscillator run
     from gqsim.setup import build_superposition_setup
 
     return build_superposition_setup(protocol).measures
+
+
+# ----------------------------------------------------------------------------- oscillators
+
+_AXIS_VECTORS = {"x": np.array([1.0, 0.0, 0.0]), "y": np.array([0.0, 1.0, 0.0]), "z": np.array([0.0, 0.0, 1.0])}
+
+
+def _oscillator_bodies(protocol: Protocol, env_table):
+    from gqsim.oscillators.setup import setup_from_protocol
+
+    setup = setup_from_protocol(protocol.data)
+    env = environment_from_table(env_table) if env_table is not None else None
+    spheres = []
+    for index, body in enumerate(setup.bodies):
+        entry = protocol.data["bodies"][index]
+        spheres.append(None if env is None else sphere_from_body_table(
+            {**entry, "label": body.label}, mass_kg=body.mass_kg, radius_m=body.radius_m, key=f"bodies[{index}]"))
+    return setup, env, spheres
+
+
+def oscillator_channel_table(environment, sphere, body, existing: Mapping[str, Any], key: str) -> dict:
+    """A body's ``channels`` table with the environment merged in (oscillator protocols).
+
+    Gas becomes Caldeira-Leggett damping (``damping_model = "brownian"``) at the gas
+    temperature - its localisation is that damping's diffusion and is *not* added again;
+    photon, laser and user localisation add to ``localisation_per_m2_s`` (the laser's
+    anisotropic recoil is taken along the most strongly kicked active mode, conservative,
+    because the table holds one value per body).
+    """
+    from gqsim.environment.sources import oscillator_terms
+    from gqsim.errors import PhysicsError
+
+    table = dict(existing)
+    per_mode = [oscillator_terms(environment, sphere, _AXIS_VECTORS[a], body.omega_rad_s(a)) for a in body.modes]
+    extra_lam = max(sum(t.localisation_per_m2_s for t in terms) for terms in per_mode)
+    if extra_lam > 0:
+        table["localisation_per_m2_s"] = table.get("localisation_per_m2_s", 0.0) + extra_lam
+    gas = [t for t in per_mode[0] if t.damping_per_s > 0]
+    if gas:
+        if table.get("damping_rate_per_s", 0.0) > 0:
+            raise PhysicsError(f"{key}.channels.damping_rate_per_s", table["damping_rate_per_s"],
+                               "the [environment.gas] table already damps this body (gas damping and gas "
+                               "collisions are one channel); remove one of them so it is not counted twice")
+        table.update(damping_model="brownian", damping_rate_per_s=gas[0].damping_per_s,
+                     bath_temperature_k=gas[0].bath_temperature_k)
+        table.pop("bath_occupation", None)
+    return table
+
+
+def _simulate_oscillators(protocol: Protocol, env_table):
+    from gqsim.pipeline import simulate
+
+    data = protocol.to_dict()
+    if env_table is not None:
+        setup, env, spheres = _oscillator_bodies(protocol, env_table)
+        for index, (body, sphere) in enumerate(zip(setup.bodies, spheres)):
+            entry = data["bodies"][index]
+            entry["channels"] = oscillator_channel_table(env, sphere, body, entry.get("channels", {}),
+                                                         f"bodies[{index}]")
+    return simulate(parse_protocol(data, source=protocol.source))
+
+
+def oscillator_budget(data: Mapping[str, Any], *, source: str = "<memory>") -> NoiseBudget:
+    """Heating rate [phonons/s] of every source on every active mode of an oscillators protocol.
+
+    Gas appears once, as damping at the gas temperature (heating gamma k_B T / (hbar omega));
+    the protocol's own channels table is listed as one line per mode.
+    """
+    from gqsim.environment.sources import oscillator_terms
+
+    protocol, table = split_environment(data, source=source)
+    setup, env, spheres = _oscillator_bodies(protocol, table)
+    lines: list[BudgetLine] = []
+    notes: list[str] = []
+    for body, sphere in zip(setup.bodies, spheres):
+        for axis in body.modes:
+            omega = body.omega_rad_s(axis)
+            rows = []
+            if env is not None:
+                for term in oscillator_terms(env, sphere, _AXIS_VECTORS[axis], omega):
+                    rows.append((term.label, term.heating_phonons_per_s, term.equivalent_localisation_per_m2_s,
+                                 term.driver))
+            own = body.channels
+            own_heat = own.heating_phonons_per_s + rates_heating(own.localisation_per_m2_s, body.mass_kg, omega)
+            own_heat += own.damping_rate_per_s * own.bath_occupation_at(omega)
+            if own_heat > 0:
+                rows.append(("protocol channels table", own_heat, None, None))
+            total = sum(r[1] for r in rows)
+            for label, heat, lam, driver in rows:
+                lines.append(BudgetLine(body=f"{body.label}.{axis}", source=label, rate_per_s=heat,
+                                        share=heat / total if total > 0 else 0.0, separation_m=math.nan,
+                                        localisation_per_m2_s=lam, saturation_per_s=None, driver=driver,
+                                        reference="gqsim.environment.sources.oscillator_terms"))
+        if env is not None:
+            notes.extend(validity_notes(env, sphere))
+    if env is None:
+        notes.append("the protocol has no [environment] table: only its own channels are listed")
+    return NoiseBudget(lines=tuple(lines), notes=tuple(dict.fromkeys(notes)),
+                       title=protocol.data.get("about", {}).get("title", ""), quantity="heating [phonons/s]")
+
+
+def rates_heating(localisation_per_m2_s: float, mass_kg: float, omega_rad_s: float) -> float:
+    """hbar Lambda / (M omega) [phonons/s] (see :func:`gqsim.environment.rates.heating_phonons_per_s`)."""
+    from gqsim.environment.rates import heating_phonons_per_s
+
+    return heating_phonons_per_s(localisation_per_m2_s, mass_kg, omega_rad_s)
 
 
 # ----------------------------------------------------------------------------- figure
@@ -482,7 +610,7 @@ def plot_budget(budget: NoiseBudget, ax=None):
     ax.barh(y, values, color=[palette[ln.source] for ln in budget.lines])
     ax.set_yticks(y, labels)
     ax.set_xscale("log")
-    ax.set_xlabel("coherence decay rate F(Delta) [1/s]")
+    ax.set_xlabel(budget.quantity)
     for yi, ln in zip(y, budget.lines):
         ax.annotate(f"{100 * ln.share:.3g}%", (values[yi], yi), xytext=(3, 0), textcoords="offset points",
                     va="center", fontsize=8)
