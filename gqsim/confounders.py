@@ -87,6 +87,7 @@ __all__ = [
     "oscillator_attribution",
     "casimir_polder_gravity_crossover_m",
     "smallest_separation_below_m",
+    "casimir_polder_phase_crossover_m",
     "smallest_centre_distance_for_phase_m",
     "FORCE_LABELS",
     "ELECTROMAGNETIC_LABELS",
@@ -1049,6 +1050,34 @@ def smallest_centre_distance_for_phase_m(confounder, gravity: NewtonianGravity, 
         return float(np.linalg.norm(tc) / np.linalg.norm(tg)) or 1e-300
 
     return _last_crossing(ratio, lower, _positive("upper_m", upper_m, "m"), f, confounder.label)
+
+
+def casimir_polder_phase_crossover_m(*, relative_permittivity: float, density_kg_m3: float, style: str,
+                                     branch_span_m: float, fraction: float = DEFAULT_SHARE_LIMIT,
+                                     temperature_k: float = 0.0, branch_count: int = 2) -> float:
+    """Centre distance below which Casimir-Polder's entangling phase exceeds ``fraction`` of gravity's [m].
+
+    Two equal homogeneous spheres in gqsim's ``[arrangement]`` geometry (see
+    :func:`smallest_centre_distance_for_phase_m`). Both entangling phases scale as R^6 (a^2 and
+    m^2), so the answer does not depend on the radius; it is computed at R = 1 um with the
+    closest branch approach kept above the sum of radii.
+    """
+    radius = 1e-6
+    rho = _positive("density_kg_m3", density_kg_m3, "kg/m^3")
+    mass = 4.0 / 3.0 * math.pi * radius**3 * rho
+    temperature = _finite("temperature_k", temperature_k, "K")
+    if temperature < 0:
+        raise ProtocolError("temperature_k", temperature_k, "must be >= 0 K")
+    spheres = dict(radius_a_m=radius, radius_b_m=radius, permittivity_a=relative_permittivity,
+                   permittivity_b=relative_permittivity)
+    force = (ThermalCasimirPolder(**spheres, temperature_k=temperature) if temperature > 0
+             else RetardedCasimirPolder(**spheres))
+    if clausius_mossotti_factor(relative_permittivity) == 0:
+        raise PhysicsError("relative_permittivity", relative_permittivity,
+                           "eps = 1 has no Casimir-Polder force, so every separation is safe")
+    return smallest_centre_distance_for_phase_m(force, NewtonianGravity(mass_a_kg=mass, mass_b_kg=mass),
+                                                style=style, branch_span_m=branch_span_m, fraction=fraction,
+                                                branch_count=branch_count, contact_m=2 * radius)
 
 
 # ----------------------------------------------------------------------------- protocol fragment

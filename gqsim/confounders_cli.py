@@ -56,13 +56,18 @@ def budget_command(protocol: Path, share_limit: float | None, as_json: bool):
               help="Casimir-Polder allowed as this fraction of gravity.")
 @click.option("--field-temperature-k", type=float, default=0.0, show_default=True,
               help="Temperature of the field between the spheres [K]; > 0 includes thermal Casimir-Polder.")
+@click.option("--style", type=click.Choice(["in_line", "side_by_side"]), default=None,
+              help="Compare entangling phases for this branch arrangement (needs --branch-span-m).")
+@click.option("--branch-span-m", type=float, default=None, help="Distance between a body's outer branches [m].")
 def safe_gap_command(material: str | None, relative_permittivity: float | None, density_kg_m3: float | None,
-                     fraction: float, field_temperature_k: float):
+                     fraction: float, field_temperature_k: float, style: str | None, branch_span_m: float | None):
     """Separation below which Casimir-Polder exceeds FRACTION of gravity (equal homogeneous spheres).
 
-    The answer does not depend on the sphere radius.
+    Without --style: the energies at one separation. With --style and --branch-span-m: the
+    entangling phases, and the answer is the distance between the body centres. Neither
+    depends on the sphere radius.
     """
-    from gqsim.confounders import casimir_polder_gravity_crossover_m
+    from gqsim.confounders import casimir_polder_gravity_crossover_m, casimir_polder_phase_crossover_m
     from gqsim.materials import material as lookup
 
     eps, rho = relative_permittivity, density_kg_m3
@@ -75,6 +80,16 @@ def safe_gap_command(material: str | None, relative_permittivity: float | None, 
     if eps is None or rho is None:
         raise ProtocolError("--relative-permittivity/--density-kg-m3", None,
                             "give --material, or both --relative-permittivity and --density-kg-m3")
-    gap = casimir_polder_gravity_crossover_m(relative_permittivity=eps, density_kg_m3=rho, fraction=fraction,
-                                             temperature_k=field_temperature_k)
-    click.echo(f"casimir_polder_safe_gap_m: {gap:.6g}")
+    if (style is None) != (branch_span_m is None):
+        raise ProtocolError("--style/--branch-span-m", style or branch_span_m, "give both or neither")
+    if style is None:
+        gap = casimir_polder_gravity_crossover_m(relative_permittivity=eps, density_kg_m3=rho, fraction=fraction,
+                                                 temperature_k=field_temperature_k)
+        click.echo(f"casimir_polder_safe_gap_m: {gap:.6g}")
+        return
+    centre = casimir_polder_phase_crossover_m(relative_permittivity=eps, density_kg_m3=rho, style=style,
+                                              branch_span_m=branch_span_m, fraction=fraction,
+                                              temperature_k=field_temperature_k)
+    closest = centre - branch_span_m if style == "in_line" else centre
+    click.echo(f"closest_branch_approach_m: {closest:.6g}")
+    click.echo(f"casimir_polder_safe_centre_distance_m: {centre:.6g}")

@@ -232,3 +232,23 @@ def test_oscillator_budget_screen_and_dipoles():
         body["modes"] = ["y"]
     with pytest.raises(PhysicsError, match="line of centres"):
         force_budget(data)
+
+
+def test_cli_safe_gap_for_entangling_phases_is_radius_independent():
+    # The CLI computes at R = 1 um; both entangling phases scale as R^6, so R = 3 um diamonds
+    # (built here directly) must give the same centre distance (root finding rtol 1e-12).
+    from gqsim.confounders import smallest_centre_distance_for_phase_m
+
+    out = CliRunner().invoke(cli, ["forces", "safe-gap", "--material", "diamond", "--style", "in_line",
+                                   "--branch-span-m", "250e-6"])
+    assert out.exit_code == 0, out.output
+    values = dict(line.split(": ") for line in out.output.strip().splitlines())
+    radius = 3e-6
+    mass = 4 / 3 * math.pi * radius**3 * 3510.0
+    cp = RetardedCasimirPolder(radius_a_m=radius, radius_b_m=radius, permittivity_a=5.7, permittivity_b=5.7)
+    direct = smallest_centre_distance_for_phase_m(cp, NewtonianGravity(mass_a_kg=mass, mass_b_kg=mass),
+                                                  style="in_line", branch_span_m=250e-6, contact_m=2 * radius)
+    assert float(values["casimir_polder_safe_centre_distance_m"]) == pytest.approx(direct, rel=1e-5)  # 6 figures
+    assert float(values["closest_branch_approach_m"]) == pytest.approx(direct - 250e-6, rel=1e-5)
+    half = CliRunner().invoke(cli, ["forces", "safe-gap", "--material", "diamond", "--style", "in_line"])
+    assert half.exit_code == 2 and "give both" in half.output
