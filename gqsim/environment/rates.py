@@ -52,7 +52,7 @@ __all__ = [
 # ----------------------------------------------------------------------------- gas collisions
 
 def number_density_per_m3(pressure_pa: float, temperature_k: float) -> float:
-    """Ideal-gas number density n = P / (k_B T) [1/m^3] (textbook, common practice)."""
+    """Ideal-gas number density n = P / (k_B T) [1/m^3] (ideal-gas law, Sec. 7.4 of [Reif1965], from memory)."""
     return pressure_pa / (k_B * temperature_k)
 
 
@@ -60,18 +60,21 @@ def gas_thermal_wavelength_m(molecular_mass_kg: float, temperature_k: float) -> 
     """Thermal de Broglie wavelength lambda_th = 2 pi hbar / sqrt(2 pi m_a k_B T) [m].
 
     The crossover length of the gas-collision decoherence function (Sec. 3.4 of
-    [Schlosshauer2007]; [RomeroIsart2011]). Valid for an ideal gas in equilibrium.
+    [Schlosshauer2007]; [RomeroIsart2011], equation numbers not checked). Valid for an
+    ideal gas in equilibrium.
     """
     return 2.0 * pi * hbar / math.sqrt(2.0 * pi * molecular_mass_kg * k_B * temperature_k)
 
 
 def gas_rms_speed_m_s(molecular_mass_kg: float, temperature_k: float) -> float:
-    """Root-mean-square molecular speed v_rms = sqrt(3 k_B T / m_a) [m/s] (Maxwell-Boltzmann)."""
+    """Root-mean-square molecular speed v_rms = sqrt(3 k_B T / m_a) [m/s] (Maxwell-Boltzmann
+    distribution, Sec. 7.10 of [Reif1965], from memory)."""
     return math.sqrt(3.0 * k_B * temperature_k / molecular_mass_kg)
 
 
 def gas_mean_speed_m_s(molecular_mass_kg: float, temperature_k: float) -> float:
-    """Mean molecular speed <v> = sqrt(8 k_B T / (pi m_a)) [m/s] (Maxwell-Boltzmann)."""
+    """Mean molecular speed <v> = sqrt(8 k_B T / (pi m_a)) [m/s] (Maxwell-Boltzmann
+    distribution, Sec. 7.10 of [Reif1965], from memory)."""
     return math.sqrt(8.0 * k_B * temperature_k / (pi * molecular_mass_kg))
 
 
@@ -119,7 +122,8 @@ def epstein_damping_per_s(pressure_pa: float, temperature_k: float, molecular_ma
     """Free-molecular (Epstein) velocity damping rate gamma_v [1/s] of a sphere in a dilute gas.
 
     M gamma_v = (4 pi / 3) R^2 P sqrt(8 m_a / (pi k_B T)): Epstein's drag for specular
-    reflection of the molecules [Epstein1924] (delta = 1 in his notation, from memory).
+    reflection of the molecules: the drag law of [Epstein1924] with his accommodation
+    factor delta = 1 (equation number not checked; form as in shared §3.1).
     Valid when the mean free path is much larger than R (any pressure relevant here).
     With :func:`brownian_localisation_per_m2_s` this reproduces
     :func:`gas_localisation_per_m2_s` exactly: gas damping and gas-collision localisation
@@ -149,7 +153,8 @@ def clausius_mossotti(permittivity: complex) -> complex:
 
 
 def thermal_wavenumber_per_m(temperature_k: float) -> float:
-    """kappa = k_B T / (hbar c) [1/m]: the wavenumber scale of thermal photons."""
+    """kappa = k_B T / (hbar c) [1/m]: the wavenumber scale of thermal photons (x = hbar c k/(k_B T)
+    is the argument of the Planck distribution, Sec. 9.13 of [Reif1965], from memory)."""
     return k_B * temperature_k / (hbar * c)
 
 
@@ -204,8 +209,9 @@ def blackbody_absorption_localisation_per_m2_s(radius_m: float, temperature_k: f
 def blackbody_absorption_total_per_s(radius_m: float, temperature_k: float, permittivity: complex) -> float:
     """Total thermal-photon absorption (or emission) rate [1/s], the saturation of that channel.
 
-    Gamma = (4 pi^3 / 15) c R^3 Im(alpha) (k_B T/(hbar c))^4 (absorption cross-section of
-    [BohrenHuffman1983] over the Planck flux; derived here).
+    Gamma = (4 pi^3 / 15) c R^3 Im(alpha) (k_B T/(hbar c))^4: the absorption cross-section,
+    Eq. (5.11) of [BohrenHuffman1983] (from memory), integrated over the Planck photon flux
+    (derived here; shared §3.2).
     """
     alpha = clausius_mossotti(permittivity)
     return 4.0 * pi**3 / 15.0 * c * radius_m**3 * alpha.imag * thermal_wavenumber_per_m(temperature_k) ** 4
@@ -224,7 +230,8 @@ def rayleigh_scattering_cross_section_m2(radius_m: float, wavelength_m: float, p
 def laser_peak_photon_flux_per_m2_s(power_w: float, wavelength_m: float, waist_m: float) -> float:
     """Photon flux at the focus of a Gaussian beam, Phi = 2 P / (pi w0^2 hbar omega_L) [1/(m^2 s)].
 
-    Peak intensity 2P/(pi w0^2) of a TEM00 beam with 1/e^2 intensity radius w0 (common practice).
+    Peak intensity 2P/(pi w0^2) of a TEM00 beam with 1/e^2 intensity radius w0 (common practice;
+    Gaussian-beam intensity as in Sec. 8 of [Jackson1999], from memory).
     """
     omega = 2.0 * pi * c / wavelength_m
     return 2.0 * power_w / (pi * waist_m**2 * hbar * omega)
@@ -232,8 +239,9 @@ def laser_peak_photon_flux_per_m2_s(power_w: float, wavelength_m: float, waist_m
 
 def laser_scattering_rate_per_s(power_w: float, wavelength_m: float, waist_m: float, radius_m: float,
                                 permittivity: complex) -> float:
-    """Photons scattered per second by a sphere at the focus, Gamma = sigma Phi [1/s]
-    (§ scattering rate of [RomeroIsart2011Levitation], from memory)."""
+    """Photons scattered per second by a sphere at the focus, Gamma = sigma Phi [1/s], with sigma
+    of Eq. (5.8) of [BohrenHuffman1983] (from memory); the same product as the scattering rate
+    of [RomeroIsart2011Levitation] (shared §3.3)."""
     return (rayleigh_scattering_cross_section_m2(radius_m, wavelength_m, permittivity)
             * laser_peak_photon_flux_per_m2_s(power_w, wavelength_m, waist_m))
 
@@ -259,8 +267,9 @@ def laser_localisation_per_m2_s(scattering_rate_per_s: float, wavelength_m: floa
                                 polarisation_axis: np.ndarray, propagation_axis: np.ndarray) -> float:
     """Recoil localisation along unit vector ``axis``: Lambda = k^2 (u^T A u) Gamma_scat / 2 [1/(m^2 s)].
 
-    From D_pp = (hbar k)^2 (u^T A u) Gamma_scat = 2 hbar^2 Lambda (see :func:`recoil_tensor`;
-    [RomeroIsart2011Levitation], from memory).
+    From D_pp = (hbar k)^2 (u^T A u) Gamma_scat = 2 hbar^2 Lambda (see :func:`recoil_tensor`,
+    whose dipole averages come from Eq. (9.22) of [Jackson1999]; [RomeroIsart2011Levitation], from
+    memory; shared §3.3).
     """
     u = np.asarray(axis, dtype=float)
     u = u / np.linalg.norm(u)
