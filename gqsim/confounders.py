@@ -185,6 +185,14 @@ def polarisability_volume_m3(radius_m: float, relative_permittivity: float | Non
     return radius**3 * clausius_mossotti_factor(relative_permittivity, f"{key}.relative_permittivity")
 
 
+def _point_dipole_note(label: str, r_min_m: float, radius_m: float) -> tuple[str, ...]:
+    # Common practice: the point-polarisability laws need r >> R; flag below 10 R.
+    if r_min_m < 10.0 * radius_m:
+        return (f"{label}: closest approach {r_min_m:.3g} m is below 10 x the sphere radius {radius_m:.3g} m; "
+                "the point-dipole law is marginal there (proximity regime not modelled)",)
+    return ()
+
+
 # ----------------------------------------------------------------------------- potentials
 
 @dataclass(frozen=True, kw_only=True)
@@ -238,6 +246,10 @@ class RetardedCasimirPolder:
     def radial_derivative(self, r_m, order: int):
         """d^n U/dr^n of -C7 r^-7 [J/m^n], n = 1..4."""
         return _power_law(-self.coefficient_j_m7, 7, _separation(r_m), order)
+
+    def regime_notes(self, r_min_m: float) -> tuple[str, ...]:
+        """Warnings when the closest approach ``r_min_m`` [m] leaves the law's regime."""
+        return _point_dipole_note(self.label, r_min_m, max(self.radius_a_m, self.radius_b_m))
 
 
 # Below this value of a = 2 pi k_B T r/(hbar c) the Matsubara sum equals the zero-temperature
@@ -329,6 +341,10 @@ class ThermalCasimirPolder:
             raise ValueError(f"order must be 1 or 2, got {order}")
         return self._evaluate(r_m, order)
 
+    def regime_notes(self, r_min_m: float) -> tuple[str, ...]:
+        """Warnings when the closest approach ``r_min_m`` [m] leaves the law's regime."""
+        return _point_dipole_note(self.label, r_min_m, max(self.radius_a_m, self.radius_b_m))
+
 
 @dataclass(frozen=True, kw_only=True)
 class LondonVanDerWaals:
@@ -389,6 +405,14 @@ class LondonVanDerWaals:
     def radial_derivative(self, r_m, order: int):
         """d^n U/dr^n of -C6 r^-6 [J/m^n], n = 1..4."""
         return _power_law(-self.coefficient_j_m6, 6, _separation(r_m), order)
+
+    def regime_notes(self, r_min_m: float) -> tuple[str, ...]:
+        """Warnings when the closest approach ``r_min_m`` [m] leaves the law's regime."""
+        notes = _point_dipole_note(self.label, r_min_m, max(self.radius_a_m, self.radius_b_m))
+        if r_min_m > 0.1 * self.crossover_m:
+            notes += (f"{self.label}: closest approach {r_min_m:.3g} m exceeds 0.1 c/W = {0.1 * self.crossover_m:.3g} m;"
+                      " retardation weakens the force there, use casimir_polder",)
+        return notes
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -471,6 +495,10 @@ class ChargeInducedDipole:
     def radial_derivative(self, r_m, order: int):
         """d^n U/dr^n of -C4 r^-4 [J/m^n], n = 1..4."""
         return _power_law(-self.coefficient_j_m4, 4, _separation(r_m), order)
+
+    def regime_notes(self, r_min_m: float) -> tuple[str, ...]:
+        """Warnings when the closest approach ``r_min_m`` [m] leaves the law's regime."""
+        return _point_dipole_note(self.label, r_min_m, max(self.radius_a_m, self.radius_b_m))
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -787,6 +815,14 @@ def superposition_attribution(potentials: Sequence, bodies: Sequence, *, hold_s:
     rows = [ForceRow(label=lab, value=_representative(t), share=sh,
                      log_negativity=pure_log_negativity_bits(a.amplitudes, b.amplitudes, m), exceeds_limit=fl)
             for lab, t, m, sh, fl in zip(labels, thetas, phase_mats, shares, flags)]
+    sigmas = np.linspace(0.0, 1.0, 201) if (split_s + recombine_s) > 0 else np.array([1.0])
+    base = np.asarray(a.centre_m, float) - np.asarray(b.centre_m, float)
+    q = np.asarray(a.offsets_m, float)[:, None, :] - np.asarray(b.offsets_m, float)[None, :, :]
+    r_min = float(min(np.min(np.linalg.norm(base + s * q, axis=-1)) for s in sigmas))
+    for p in potentials:
+        check = getattr(p, "regime_notes", None)
+        if check is not None:
+            notes = (*notes, *check(r_min))
     total = sum(phase_mats)
     scale = max(float(np.max(np.abs(m))) for m in phase_mats)
     if scale > _PHASE_PRECISION_LIMIT_RAD:

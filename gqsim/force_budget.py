@@ -23,6 +23,8 @@ from gqsim.confounders import (
     ConductingScreen,
     DipoleDipole,
     ForceRow,
+    RetardedCasimirPolder,
+    ThermalCasimirPolder,
     _body_table,
     _check_limit,
     _shares,
@@ -106,9 +108,30 @@ def superposition_budget(data: Mapping[str, Any], *, share_limit: float | None =
                      + " removed between the bodies; image terms are local and do not entangle")
         local, screen_notes = _screen_local_phases(setup, tables, interactions)
         notes.extend(screen_notes)
+    notes.extend(_cold_field_notes(potentials, setup))
     table = superposition_attribution(potentials, setup.bodies, hold_s=t.hold_s, split_s=t.split_s,
                                       recombine_s=t.recombine_s, share_limit=limit, notes=notes)
     return replace(table, local_phases_rad=local)
+
+
+def _cold_field_notes(potentials, setup) -> list[str]:
+    """Remind that zero-temperature Casimir-Polder was used, with what a warm field would give."""
+    a, b = setup.bodies
+    rel = (a.centre_m + a.offsets_m)[:, None, :] - (b.centre_m + b.offsets_m)[None, :, :]
+    r_min = float(np.min(np.linalg.norm(rel, axis=-1)))
+    out = []
+    for p in potentials:
+        if isinstance(p, RetardedCasimirPolder):
+            cold = float(p.energy_j(r_min))
+            factors = []
+            for temperature in (4.0, 300.0):
+                warm = ThermalCasimirPolder(radius_a_m=p.radius_a_m, radius_b_m=p.radius_b_m,
+                                            permittivity_a=p.permittivity_a, permittivity_b=p.permittivity_b,
+                                            temperature_k=temperature)
+                factors.append(f"x{float(warm.energy_j(r_min)) / cold:.3g} at {temperature:g} K")
+            out.append(f"casimir_polder at zero field temperature (set interactions.field_temperature_k); at the "
+                       f"closest approach {r_min:.3g} m a warm field makes it " + ", ".join(factors))
+    return out
 
 
 def _screen_local_phases(setup, tables, interactions) -> tuple[dict[str, list[float]], list[str]]:

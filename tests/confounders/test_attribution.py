@@ -298,3 +298,18 @@ def test_log_negativity_bounds_and_local_invariance(phases, moduli):
     assert -1e-12 <= value <= math.log2(3) + 1e-12
     shifted = phi + np.array([0.3, -1.0, 2.0])[:, None] + np.array([5.0, 0.1, -0.7])[None, :]
     assert pure_log_negativity_bits(a, b, shifted) == pytest.approx(value, abs=1e-10)
+
+
+def test_regime_notes_flag_laws_used_outside_their_range():
+    from gqsim.confounders import LondonVanDerWaals
+
+    close = superposition_attribution([GRAV, RetardedCasimirPolder(radius_a_m=20e-6, radius_b_m=20e-6,
+                                                                   permittivity_a=5.7, permittivity_b=5.7)],
+                                      bodies("in_line", 450e-6, 250e-6), hold_s=1.0)
+    assert any("point-dipole law is marginal" in n for n in close.notes)
+    assert not any("marginal" in n for n in superposition_attribution(
+        [GRAV, CP], bodies("in_line", 450e-6, 250e-6), hold_s=1.0).notes)
+    london = LondonVanDerWaals(radius_a_m=1e-6, radius_b_m=1e-6, permittivity_a=5.7, permittivity_b=5.7,
+                               resonance_a_rad_s=2e16, resonance_b_rad_s=2e16)
+    far = superposition_attribution([GRAV, london], bodies("in_line", 450e-6, 250e-6), hold_s=1.0)
+    assert any("retardation" in n for n in far.notes)

@@ -252,3 +252,14 @@ def test_cli_safe_gap_for_entangling_phases_is_radius_independent():
     assert float(values["closest_branch_approach_m"]) == pytest.approx(direct - 250e-6, rel=1e-5)
     half = CliRunner().invoke(cli, ["forces", "safe-gap", "--material", "diamond", "--style", "in_line"])
     assert half.exit_code == 2 and "give both" in half.output
+
+
+def test_budget_says_when_casimir_polder_is_taken_at_zero_temperature():
+    table = superposition_budget(load("casimir-budget-diamonds.toml"))
+    assert any("zero field temperature" in n and "300 K" in n for n in table.notes)
+    data = load("casimir-budget-diamonds.toml")
+    data["interactions"]["field_temperature_k"] = 4.0
+    warm = superposition_budget(data)
+    assert not any("zero field temperature" in n for n in warm.notes)
+    # 4 K adds ~1.4 % at 200 um (thermal length 573 um): the share grows a little.
+    assert warm.row("casimir_polder").share > table.row("casimir_polder").share
