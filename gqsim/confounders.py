@@ -1174,6 +1174,9 @@ def potentials_from_tables(interactions: Mapping[str, Any] | None, body_tables: 
             raise ProtocolError("interactions.include", name, f"must be among {list(FORCE_LABELS)}")
     if interactions.get("conducting_screen", False):
         include = [n for n in include if n not in ELECTROMAGNETIC_LABELS]
+        if not include:
+            raise ProtocolError("interactions.include", list(interactions.get("include", [])),
+                                "the conducting screen removes every force listed; include gravity")
     ordered = sorted(dict.fromkeys(include), key=lambda n: (n != "gravity", include.index(n)))
     keys = [f"bodies[{i}]" for i in range(2)]
 

@@ -203,6 +203,9 @@ def oscillator_budget(data: Mapping[str, Any], *, share_limit: float | None = No
     interactions = dict(extra.get("interactions") or {"include": ["gravity"]})
     include = [n for n in dict.fromkeys(interactions["include"])
                if not (interactions.get("conducting_screen") and n in ELECTROMAGNETIC_LABELS)]
+    if not include:
+        raise ProtocolError("interactions.include", list(interactions["include"]),
+                            "the conducting screen removes every force listed; include gravity")
     labels = [b.label for b in setup.bodies]
     raw = [dict(t) for t in data["bodies"]]
     if "dipole_dipole" in include:

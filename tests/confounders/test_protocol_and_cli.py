@@ -263,3 +263,11 @@ def test_budget_says_when_casimir_polder_is_taken_at_zero_temperature():
     assert not any("zero field temperature" in n for n in warm.notes)
     # 4 K adds ~1.4 % at 200 um (thermal length 573 um): the share grows a little.
     assert warm.row("casimir_polder").share > table.row("casimir_polder").share
+
+
+def test_screen_that_leaves_no_force_is_a_one_line_error():
+    for name in ("casimir-budget-diamonds.toml", "charged-rehearsal-ions.toml"):
+        data = load(name)
+        data["interactions"] = {"include": ["coulomb"], "conducting_screen": True}
+        with pytest.raises(ProtocolError, match="include gravity"):
+            force_budget(data)
