@@ -271,3 +271,18 @@ def test_screen_that_leaves_no_force_is_a_one_line_error():
         data["interactions"] = {"include": ["coulomb"], "conducting_screen": True}
         with pytest.raises(ProtocolError, match="include gravity"):
             force_budget(data)
+
+
+@pytest.mark.parametrize("body, key, value, words", [
+    (0, "relative_permittivity", -2.0, "must be >= 1"),
+    (1, "dipole_c_m", 1e-23, "[px, py, pz]"),
+    (0, "charge_c", "one electron", "number"),
+])
+def test_budget_rejects_bad_body_keys_in_one_line(body, key, value, words):
+    # The bad-input checks, through the protocol route.
+    data = load("casimir-budget-diamonds.toml")
+    data["bodies"][body][key] = value
+    with pytest.raises(ProtocolError) as info:
+        superposition_budget(data)
+    text = str(info.value)
+    assert f"bodies[{body}].{key}" in text and words in text and "\n" not in text
