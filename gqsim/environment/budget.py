@@ -273,7 +273,15 @@ def simulate_with_environment(protocol: Protocol, env_table: Mapping[str, Any] |
         data["environment"] = copy.deepcopy(dict(env_table))
     provenance = Provenance(protocol=data, source=protocol.source, engine=engine, options=dict(evo.stats),
                             versions=package_versions())
-    return Result(times_s=times, series=series, units={k: "1" for k in series}, summary={},
+    from gqsim.measures import LOG_BASES
+
+    units = {k: {"log_negativity": LOG_BASES[setup.log_base][1], "entangling_phase": "rad"}.get(k, "1")
+             for k in series}
+    summary = {name: {"max": float(np.max(v)), "time_of_max_s": float(times[int(np.argmax(v))])}
+               for name, v in series.items()}
+    summary["environment_channels"] = {b.label: [s.label for s in x[0].sources] if x else []
+                                       for b, x in zip(setup.bodies, extras)}
+    return Result(times_s=times, series=series, units=units, summary=summary,
                   provenance=provenance, states=None, dims=model.dims, family="superposition")
 
 

@@ -135,3 +135,34 @@ def test_cli_bad_environment_is_one_line_exit_2(demo, tmp_path):
     out = CliRunner().invoke(cli, ["noise", "budget", str(bad)])
     assert out.exit_code == 2
     assert out.output.strip() == "gqsim: error: environment.gas.pressure_pa = -1e-15: must be >= 0 (gas pressure [Pa])"
+
+
+def test_without_environment_the_run_equals_the_standard_pipeline():
+    # guards simulate_with_environment against drifting from gqsim.pipeline.simulate
+    from gqsim.pipeline import simulate
+    from gqsim.protocol import load_protocol
+
+    proto = load_protocol(HERE.parent.parent / "protocols" / "strong-dephasing.toml")
+    ours = simulate_with_environment(proto, None)
+    theirs = simulate(proto)
+    for name, values in theirs.series.items():
+        # same engine and inputs; measures differ only by round-off, which the concurrence's square roots
+        # of eigenvalues lift to ~1e-8 (gqsim.superposition_run.CONCURRENCE_SIGNAL_FLOOR = 1e-7)
+        np.testing.assert_allclose(ours.series[name], values, rtol=0, atol=1e-7)
+
+
+def test_environment_channel_equals_the_same_rate_given_as_a_raw_dephasing_table(demo):
+    # Static branches: F(Delta) is a constant rate, so the environment run must equal a run whose bodies carry
+    # that rate in the protocol's own [bodies.dephasing] table (exact element-wise decay, closed form).
+    proto, table = split_environment(demo)
+    with_env = simulate_with_environment(proto, table)
+    budget = superposition_budget(demo)
+    raw = copy.deepcopy(demo)
+    del raw["environment"]
+    for body in raw["bodies"]:
+        total = budget.total_per_s(body["label"])
+        body["dephasing"] = {"model": "constant", "rate_per_s": total}
+    proto_raw, _ = split_environment(raw)
+    plain = simulate_with_environment(proto_raw, None)
+    for name in ("witness_optimised", "log_negativity", "purity"):
+        np.testing.assert_allclose(with_env.series[name], plain.series[name], rtol=1e-12, atol=1e-14)
