@@ -34,6 +34,7 @@ __all__ = [
     "environment_from_table",
     "sphere_from_body_table",
     "schema_fragment",
+    "with_environment_key",
 ]
 
 #: Molecular masses [u] of the residual-gas species a protocol may name. Standard atomic
@@ -360,3 +361,18 @@ def schema_fragment() -> dict:
 
     text = resources.files("gqsim").joinpath("schemas", "environment-v1.fragment.json").read_text(encoding="utf-8")
     return json.loads(text)
+
+
+def with_environment_key(schema: Mapping[str, Any]) -> dict:
+    """A copy of a family schema with the optional ``environment`` table added (idempotent).
+
+    The fragment's own ``$schema``/``$id``/``title`` are dropped; everything else becomes
+    ``properties.environment``.
+    """
+    import json
+
+    out = json.loads(json.dumps(schema))
+    frag = {k: v for k, v in schema_fragment().items() if k not in ("$schema", "$id", "title")}
+    frag["description"] = "the apparatus around the bodies (gas, thermal radiation, laser, extra rates)"
+    out["properties"]["environment"] = frag
+    return out

@@ -106,3 +106,27 @@ def test_sphere_radius_from_mass_and_material_density():
         sphere_from_body_table({"mass_kg": 1e-14})
     with pytest.raises(ProtocolError, match="Tern.radius_m"):
         Sphere(label="Tern", radius_m=-1.0, mass_kg=1.0)
+
+
+@pytest.mark.parametrize("family", ["superposition", "oscillators"])
+def test_fragment_wires_into_both_family_schemas(family, monkeypatch):
+    # How the lead wires the fragment: properties.environment = fragment. After wiring, parse_protocol accepts
+    # the table itself and reports bad values with the same one-line wording.
+    import gqsim.protocol as protocol_module
+    from gqsim.environment.parameters import with_environment_key
+
+    original = protocol_module.schema_for
+    monkeypatch.setattr(protocol_module, "schema_for", lambda fam, version=1: with_environment_key(original(fam, version)))
+    base = dict(MINIMAL_PROTOCOL) if family == "superposition" else {
+        "schema_version": 1, "family": "oscillators",
+        "bodies": [{"label": "W", "radius_m": 1e-4, "material": "silica", "position_m": [0, 0, 0], "trap_hz": 1.0},
+                   {"label": "F", "radius_m": 1e-4, "material": "silica", "position_m": [1e-3, 0, 0], "trap_hz": 1.0}],
+        "stages": [{"label": "hold", "duration_s": 1.0}],
+    }
+    proto = protocol_module.parse_protocol({**base, "environment": FULL_TABLE})
+    assert proto.data["environment"]["gas"]["species"] == "He"
+    with pytest.raises(ProtocolError, match=r"^environment.gas.pressure_pa = -1"):
+        protocol_module.parse_protocol({**base, "environment": {"temperature_k": 4.0, "gas": {"pressure_pa": -1}}})
+    # split_environment keeps working once the family schema knows the key
+    _, table = split_environment({**base, "environment": FULL_TABLE})
+    assert table["temperature_k"] == 4.0
