@@ -55,11 +55,13 @@ from scipy.constants import hbar
 from gqsim.errors import PhysicsError, ProtocolError
 from gqsim.result import Result
 from gqsim.statistics import (
+    CovariancePlan,
     DuanPlan,
     MonteCarloCheck,
     RepetitionPlan,
     best_measurement_time,
     duan_plan,
+    log_negativity_plan,
     monte_carlo_check,
     plan_ppt_scan,
     plan_repetitions,
@@ -81,6 +83,8 @@ BUILTIN_WITNESSES = {
     "optimal_ppt": "re-designed at each time from the partial transpose (any branch counts)",
     "spin_correlation": "fixed |<X@Z> + <Y@Y>| > 1 in the branch frame (two qubits only)",
     "duan": "EPR-variance sum from position/momentum readout (oscillators only)",
+    "estimated_log_negativity": "log-negativity of a covariance matrix fitted to 9 quadrature settings "
+                                "(oscillators only)",
 }
 
 _ALLOWED = {
@@ -130,7 +134,7 @@ class CertifyOptions:
     readout: ReadoutModel = field(default_factory=ReadoutModel)
     position_imprecision_m: float = 0.0
     momentum_imprecision_kg_m_s: float = 0.0
-    builtin: tuple[str, ...] = ("optimal_ppt", "spin_correlation", "duan")
+    builtin: tuple[str, ...] = ("optimal_ppt", "spin_correlation", "duan", "estimated_log_negativity")
     custom: tuple[CustomWitness, ...] = ()
     trials: int = 0
     seed: int = 0
@@ -239,7 +243,7 @@ class CertificationReport:
     """Plans for every applicable witness over the time grid, with the best time of each."""
 
     times_s: np.ndarray
-    plans: Mapping[str, RepetitionPlan | DuanPlan]
+    plans: Mapping[str, RepetitionPlan | DuanPlan | CovariancePlan]
     peak_measure: str | None
     peak_time_s: float | None
     options: CertifyOptions
@@ -252,8 +256,8 @@ class CertificationReport:
         out = []
         peak_i = None if self.peak_time_s is None else int(np.argmin(np.abs(self.times_s - self.peak_time_s)))
         for name, plan in self.plans.items():
-            row: dict[str, Any] = {"witness": name, "bound": float(np.atleast_1d(plan.bound)[0])
-                                   if isinstance(plan, RepetitionPlan) else None}
+            row: dict[str, Any] = {"witness": name, "bound": None if isinstance(plan, DuanPlan)
+                                   else float(np.atleast_1d(plan.bound)[0])}
             if not np.any(np.isfinite(plan.lab_time_s)):
                 row.update({"certifiable": False})
                 out.append(row)
@@ -263,6 +267,10 @@ class CertificationReport:
                 row["bound"] = float(plan.bound[i])
                 value = float(plan.value[i])
                 settings = {"x1,x2'": plan.per_setting[i, 0], "p1,p2'": plan.per_setting[i, 1]}
+            elif isinstance(plan, CovariancePlan):
+                row["bound"] = 0.0
+                value = float(plan.value[i])
+                settings = dict(zip(plan.settings, plan.per_setting[i]))
             else:
                 value = float(plan.values[i])
                 settings = {lab: n for lab, n in zip(plan.settings, plan.per_setting[i]) if n > 0}
@@ -322,6 +330,9 @@ class CertificationReport:
             if isinstance(plan, DuanPlan):
                 entry.update({"value": plan.value.tolist(), "bound": plan.bound.tolist(), "a0": plan.a0.tolist(),
                               "rotation_rad": plan.rotation_rad.tolist()})
+            elif isinstance(plan, CovariancePlan):
+                entry.update({"value": plan.value.tolist(), "bound": 0.0, "settings": list(plan.settings),
+                              "per_setting": [_finite_list(r) for r in plan.per_setting]})
             else:
                 entry.update({"value": plan.values.tolist(), "bound": plan.bound, "settings": list(plan.settings),
                               "per_setting": [_finite_list(r) for r in plan.per_setting]})
@@ -368,7 +379,7 @@ def certify_result(result: Result, options: CertifyOptions | None = None, *,
     """
     options = options or CertifyOptions()
     times = np.asarray(result.times_s, dtype=float)
-    plans: dict[str, RepetitionPlan | DuanPlan] = {}
+    plans: dict[str, RepetitionPlan | DuanPlan | CovariancePlan] = {}
     skipped: dict[str, str] = {}
     checks: dict[str, MonteCarloCheck] = {}
     frames: dict[str, dict] = {}
@@ -389,8 +400,9 @@ def certify_result(result: Result, options: CertifyOptions | None = None, *,
             plans["optimal_ppt"] = plan_ppt_scan(states, dims, times, readout=options.readout, **options.plan_kwargs)
         for w in witnesses:
             plans[w.name] = plan_repetitions(setting_table(w, states, options.readout), times, **options.plan_kwargs)
-        if "duan" in options.builtin:
-            skipped["duan"] = "applies to oscillator runs"
+        for name in ("duan", "estimated_log_negativity"):
+            if name in options.builtin:
+                skipped[name] = "applies to oscillator runs"
         ppt = plans.get("optimal_ppt")
         if ppt is not None and np.any(np.isfinite(ppt.lab_time_s)):
             w = optimal_ppt_witness(states[best_measurement_time(times, ppt.total, ppt.overhead_s)[0]], dims)
@@ -413,13 +425,19 @@ def certify_result(result: Result, options: CertifyOptions | None = None, *,
                                                  seed=options.seed)
     elif covariances is not None:
         cov = np.asarray(covariances, dtype=float)
-        if "duan" in options.builtin:
+        if {"duan", "estimated_log_negativity"} & set(options.builtin):
             scale = np.ones(2) if position_scale_m is None else np.asarray(position_scale_m, dtype=float)
-            # X = ell x and P = (hbar/ell) p, so added noise variances convert as below (scaled units).
+            # X = ell x and P = (hbar/ell) p, so added noise variances convert as below (scaled units);
+            # the plans take one noise level per quadrature, so the two bodies' values are averaged.
             ex = float(np.mean((options.position_imprecision_m / scale) ** 2))
             ep = float(np.mean((options.momentum_imprecision_kg_m_s * scale / hbar) ** 2))
+        if "duan" in options.builtin:
             plans["duan"] = duan_plan(cov, times, imprecision_x=ex, imprecision_p=ep, confidence=options.confidence,
                                       sigmas=options.sigmas, power=options.power, overhead_s=options.overhead_s)
+        if "estimated_log_negativity" in options.builtin:
+            plans["estimated_log_negativity"] = log_negativity_plan(
+                cov, times, imprecision_x=ex, imprecision_p=ep, confidence=options.confidence, sigmas=options.sigmas,
+                power=options.power, overhead_s=options.overhead_s)
         for name in ("optimal_ppt", "spin_correlation"):
             if name in options.builtin:
                 skipped[name] = "applies to superposition (branch) runs"

@@ -126,6 +126,9 @@ _ENTRIES = [
               journal="Phys. Rev. 73, 360", year=1948, identifier="doi:10.1103/PhysRev.73.360"),
     Reference(key="Bertlmann2008", authors="R. A. Bertlmann, P. Krammer", title="Bloch vectors for qudits",
               journal="J. Phys. A 41, 235303", year=2008, identifier="arXiv:0806.1174", from_memory=True),
+    Reference(key="Anderson2003", authors="T. W. Anderson",
+              title="An Introduction to Multivariate Statistical Analysis (3rd ed.)", journal="Wiley",
+              year=2003, identifier="ISBN 978-0-471-36091-9", from_memory=True),
     Reference(key="Cochran1934", authors="W. G. Cochran",
               title="The distribution of quadratic forms in a normal system, with applications to the "
                     "analysis of covariance", journal="Math. Proc. Cambridge Philos. Soc. 30, 178", year=1934,

@@ -101,6 +101,11 @@ def test_duan_plan_from_covariances():
     plan = report.plans["duan"]
     np.testing.assert_allclose(plan.value, 2 * np.exp(-2 * r), atol=1e-9)
     assert np.isinf(plan.total[0]) and np.isfinite(plan.total[-1])
+    # Sec. 5.1: the fitted-covariance statistic is E_N = 2r nats for the TMSV.
+    est = report.plans["estimated_log_negativity"]
+    np.testing.assert_allclose(est.value, 2 * r, atol=1e-9)
+    assert np.isinf(est.total[0]) and np.isfinite(est.total[-1])
+    assert {row["witness"] for row in report.rows()} == {"duan", "estimated_log_negativity"}
     assert "optimal_ppt" in report.skipped
 
 
