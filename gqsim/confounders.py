@@ -15,6 +15,7 @@ class                           label                       U(r)
 :class:`Coulomb`                ``coulomb``                 q1 q2 / (4 pi eps0 r)
 :class:`ChargeInducedDipole`    ``charge_induced_dipole``   -(q1^2 a2 + q2^2 a1) / (8 pi eps0 r^4)
 :class:`DipoleDipole`           ``dipole_dipole``           [p1.p2 - 3 (p1.n)(p2.n)] / (4 pi eps0 r^3)
+:class:`DipoleInducedDipole`    ``dipole_induced_dipole``   -(k/2) sum a_t [p_s^2 + 3 (p_s.n)^2] / r^6
 ==============================  ==========================  =============================================
 
 :class:`ConductingScreen` (an ideal plate between the bodies) is not a pair potential: it
@@ -26,8 +27,8 @@ removes the electromagnetic pair terms and gives each body a local image energy
 
 Orientation extension (optional)
 --------------------------------
-A potential whose energy depends on the direction of the separation vector (only
-:class:`DipoleDipole` here) also provides
+A potential whose energy depends on the direction of the separation vector
+(:class:`DipoleDipole`, :class:`DipoleInducedDipole`) also provides
 
 ``energy_from_vector_j(separation_m)`` : (..., 3) -> (...)
     U at separation vectors r = r_A - r_B [m] (either sign: U is even in r here)
@@ -73,6 +74,7 @@ __all__ = [
     "Coulomb",
     "ChargeInducedDipole",
     "DipoleDipole",
+    "DipoleInducedDipole",
     "pair_energy_at",
     "ConductingScreen",
     "screen_energy_j",
@@ -100,7 +102,7 @@ __all__ = [
 
 DEFAULT_SHARE_LIMIT = 0.1
 FORCE_LABELS = ("gravity", "casimir_polder", "london_van_der_waals", "coulomb", "charge_induced_dipole",
-                "dipole_dipole")
+                "dipole_dipole", "dipole_induced_dipole")
 ELECTROMAGNETIC_LABELS = FORCE_LABELS[1:]
 
 _COULOMB_K = 1.0 / (4.0 * math.pi * epsilon_0)  # 1/(4 pi eps0) [m/F]
@@ -583,6 +585,88 @@ class DipoleDipole:
                + 15.0 * ar * br * eye / r**7
                - 105.0 * ar * br * ri * rj / r**9)
         return _COULOMB_K * out
+
+
+@dataclass(frozen=True, kw_only=True)
+class DipoleInducedDipole:
+    """Attraction of each body's permanent dipole to the dipole it induces in the other sphere.
+
+    U(r) = -(k/2) sum over (source s, polarised sphere t) a_t [p_s^2 + 3 (p_s.n)^2] / r^6,
+    k = 1/(4 pi eps0): the induced-dipole energy -(1/2) alpha E^2 (alpha = 4 pi eps0 a; Sect. 4.7
+    of [Jackson1999], from memory) in the dipole field E = k [3 n (n.p) - p] / r^3 (Eq. (4.13) of
+    [Jackson1999], from memory). Orientation dependent: same vector extension and ``axis``
+    convention as :class:`DipoleDipole`. Needs r >> R. A body without a permanent dipole
+    gives ``[0, 0, 0]``; conductors (permittivity None) have a = R^3.
+
+    Parameters
+    ----------
+    dipole_a_c_m, dipole_b_c_m : (3,) permanent dipoles [C m]
+    radius_a_m, radius_b_m : sphere radii [m]
+    permittivity_a, permittivity_b : static relative permittivities (>= 1) or None (conductor)
+    axis : (3,) direction of the separation for the radial interface (normalised here)
+    """
+
+    dipole_a_c_m: np.ndarray
+    dipole_b_c_m: np.ndarray
+    radius_a_m: float
+    radius_b_m: float
+    permittivity_a: float | None
+    permittivity_b: float | None
+    axis: np.ndarray = field(default_factory=lambda: np.array([1.0, 0.0, 0.0]))
+    label: str = "dipole_induced_dipole"
+
+    def __post_init__(self):
+        shape = DipoleDipole(dipole_a_c_m=self.dipole_a_c_m, dipole_b_c_m=self.dipole_b_c_m, axis=self.axis)
+        for name in ("dipole_a_c_m", "dipole_b_c_m", "axis"):
+            object.__setattr__(self, name, getattr(shape, name))
+        for side in "ab":
+            polarisability_volume_m3(getattr(self, f"radius_{side}_m"), getattr(self, f"permittivity_{side}"),
+                                     key=f"body_{side}")
+
+    def _pairs(self):
+        """(source dipole, polarisability volume of the other sphere) for both directions."""
+        a_a = polarisability_volume_m3(self.radius_a_m, self.permittivity_a)
+        a_b = polarisability_volume_m3(self.radius_b_m, self.permittivity_b)
+        return ((self.dipole_a_c_m, a_b), (self.dipole_b_c_m, a_a))
+
+    def _along_axis_coefficient(self) -> float:
+        n = self.axis
+        return -0.5 * _COULOMB_K * sum(alpha * (float(p @ p) + 3.0 * float(p @ n) ** 2) for p, alpha in self._pairs())
+
+    def energy_j(self, r_m):
+        """U along ``axis`` at distance r [J] (-C/r^6 form of the class formula)."""
+        return _power_law(self._along_axis_coefficient(), 6, _separation(r_m), 0)
+
+    def radial_derivative(self, r_m, order: int):
+        """d^n U/dr^n along ``axis`` (orientation held fixed) [J/m^n], n = 1..4."""
+        return _power_law(self._along_axis_coefficient(), 6, _separation(r_m), order)
+
+    def energy_from_vector_j(self, separation_m):
+        """U at separation vectors (..., 3) [m] -> (...) [J]; even in the separation."""
+        r_vec = np.asarray(separation_m, dtype=float)
+        r = _separation(np.linalg.norm(r_vec, axis=-1))
+        total = 0.0
+        for p, alpha in self._pairs():
+            total = total + alpha * (float(p @ p) / r**6 + 3.0 * (r_vec @ p) ** 2 / r**8)
+        return -0.5 * _COULOMB_K * total
+
+    def hessian_from_vector(self, separation_m):
+        """d^2 U/dr_i dr_j at separation vectors (..., 3) [m] -> (..., 3, 3) [J/m^2]
+        (the class formula differentiated twice; checked by finite differences in the tests)."""
+        r_vec = np.asarray(separation_m, dtype=float)
+        r = _separation(np.linalg.norm(r_vec, axis=-1))[..., None, None]
+        ri, rj = r_vec[..., :, None], r_vec[..., None, :]
+        eye = np.eye(3)
+        out = 0.0
+        for p, alpha in self._pairs():
+            pr = (r_vec @ p)[..., None, None]
+            term_iso = -6.0 * float(p @ p) * (eye / r**8 - 8.0 * ri * rj / r**10)
+            term_dir = (2.0 * np.outer(p, p) / r**8
+                        - 16.0 * pr * (p[:, None] * rj + ri * p[None, :]) / r**10
+                        - 8.0 * pr**2 * eye / r**10
+                        + 80.0 * pr**2 * ri * rj / r**12)
+            out = out + alpha * (term_iso + 3.0 * term_dir)
+        return -0.5 * _COULOMB_K * out
 
 
 def pair_energy_at(potential, separation_m) -> np.ndarray:
@@ -1234,6 +1318,14 @@ def potentials_from_tables(interactions: Mapping[str, Any] | None, body_tables: 
         elif name == "dipole_dipole":
             out.append(DipoleDipole(dipole_a_c_m=need(0, "dipole_c_m", name),
                                     dipole_b_c_m=need(1, "dipole_c_m", name)))
+        elif name == "dipole_induced_dipole":
+            if not any("dipole_c_m" in t for t in body_tables):
+                need(0, "dipole_c_m", name)
+            out.append(DipoleInducedDipole(dipole_a_c_m=body_tables[0].get("dipole_c_m", [0.0, 0.0, 0.0]),
+                                           dipole_b_c_m=body_tables[1].get("dipole_c_m", [0.0, 0.0, 0.0]),
+                                           radius_a_m=radius(0, name), radius_b_m=radius(1, name),
+                                           permittivity_a=permittivity(0, name, True),
+                                           permittivity_b=permittivity(1, name, True)))
     return tuple(out)
 
 

@@ -21,7 +21,6 @@ from gqsim.confounders import (
     ELECTROMAGNETIC_LABELS,
     Attribution,
     ConductingScreen,
-    DipoleDipole,
     ForceRow,
     RetardedCasimirPolder,
     ThermalCasimirPolder,
@@ -208,13 +207,14 @@ def oscillator_budget(data: Mapping[str, Any], *, share_limit: float | None = No
                             "the conducting screen removes every force listed; include gravity")
     labels = [b.label for b in setup.bodies]
     raw = [dict(t) for t in data["bodies"]]
-    if "dipole_dipole" in include:
+    oriented = [n for n in include if n in ("dipole_dipole", "dipole_induced_dipole")]
+    if oriented:
         line = np.subtract(setup.bodies[1].position_m, setup.bodies[0].position_m)
         for body in setup.bodies:
             for axis in body.modes:
                 unit = np.eye(3)["xyz".index(axis)]
                 if abs(abs(unit @ line) - np.linalg.norm(line)) > 1e-12 * np.linalg.norm(line):
-                    raise PhysicsError("interactions.include", "dipole_dipole",
+                    raise PhysicsError("interactions.include", oriented[0],
                                        f"mode {body.label}.{axis} is not along the line of centres; the oscillator "
                                        "model's Hessian is central (wire pair_hessian_at first)")
 
@@ -226,7 +226,7 @@ def oscillator_budget(data: Mapping[str, Any], *, share_limit: float | None = No
             table = {"include": [name], "field_temperature_k": interactions.get("field_temperature_k", 0.0)}
             pot = potentials_from_tables(table, tables, masses_kg=[b.mass_kg for b in pair],
                                          radii_m=[b.radius_m for b in pair])[0]
-            if isinstance(pot, DipoleDipole):  # radial interface along the actual line of centres
+            if hasattr(pot, "hessian_from_vector"):  # radial interface along the actual line of centres
                 pot = replace(pot, axis=np.subtract(body_b.position_m, body_a.position_m))
             return pot
         make.__name__ = name

@@ -12,6 +12,7 @@ from gqsim.confounders import (
     ChargeInducedDipole,
     Coulomb,
     DipoleDipole,
+    DipoleInducedDipole,
     LondonVanDerWaals,
     RetardedCasimirPolder,
     ThermalCasimirPolder,
@@ -201,6 +202,8 @@ RADIAL_POTENTIALS = [
     ChargeInducedDipole(charge_a_c=e, charge_b_c=2 * e, radius_a_m=1e-6, radius_b_m=2e-6,
                         permittivity_a=5.7, permittivity_b=None),
     DipoleDipole(dipole_a_c_m=[1e-23, 2e-23, 0], dipole_b_c_m=[0, 1e-23, -3e-23]),
+    DipoleInducedDipole(dipole_a_c_m=[1e-23, -2e-23, 0.5e-23], dipole_b_c_m=[0, 0, 3e-23], radius_a_m=1e-6,
+                        radius_b_m=2e-6, permittivity_a=5.7, permittivity_b=None),
 ]
 
 
@@ -359,3 +362,19 @@ def test_every_cited_key_resolves_in_the_reference_registry():
     keys = set(re.findall(r"of \[([A-Za-z]+\d{4})\]", text)) | set(re.findall(r"\[([A-Z][a-z]+\d{4})\]", text))
     assert {"CasimirPolder1948", "Jackson1999", "London1937", "Lifshitz1956"} <= keys
     assert keys <= set(REFERENCES), keys - set(REFERENCES)
+
+
+def test_dipole_induced_dipole_on_and_off_axis():
+    # Dipole field on the axis 2kp/r^3, broadside kp/r^3 (Jackson Eq. (4.13), from memory); energy of
+    # the induced dipole -(1/2) alpha_SI E^2 (Jackson Sect. 4.7, from memory), alpha_SI = 4 pi eps0 a.
+    p, r = 2e-23, 40e-6
+    k = 1 / (4 * math.pi * epsilon_0)
+    pot = DipoleInducedDipole(dipole_a_c_m=[p, 0, 0], dipole_b_c_m=[0, 0, 0], radius_a_m=1e-6, radius_b_m=2e-6,
+                              permittivity_a=5.7, permittivity_b=3.8)
+    alpha_si = 4 * math.pi * epsilon_0 * polarisability_volume_m3(2e-6, 3.8)
+    assert pot.energy_j(r) == pytest.approx(-0.5 * alpha_si * (2 * k * p / r**3) ** 2, rel=ROUNDING)
+    assert pot.energy_from_vector_j([0, r, 0]) == pytest.approx(-0.5 * alpha_si * (k * p / r**3) ** 2,
+                                                                rel=ROUNDING)
+    with pytest.raises(ProtocolError, match="orientation"):
+        DipoleInducedDipole(dipole_a_c_m=p, dipole_b_c_m=[0, 0, 0], radius_a_m=1e-6, radius_b_m=1e-6,
+                            permittivity_a=5.7, permittivity_b=5.7)

@@ -15,6 +15,7 @@ from gqsim.confounders import (
     ChargeInducedDipole,
     Coulomb,
     DipoleDipole,
+    DipoleInducedDipole,
     RetardedCasimirPolder,
     potentials_from_tables,
     with_interaction_keys,
@@ -48,10 +49,11 @@ def test_tables_become_potentials_in_order_with_gravity_first():
     bodies = [{"material": "diamond", "charge_c": e, "dipole_c_m": [1e-23, 0, 0]},
               {"relative_permittivity": 3.8, "charge_c": -e, "dipole_c_m": [0, 1e-23, 0]}]
     pots = potentials_from_tables(
-        {"include": ["coulomb", "casimir_polder", "gravity", "charge_induced_dipole", "dipole_dipole"]}, bodies,
+        {"include": ["coulomb", "casimir_polder", "gravity", "charge_induced_dipole", "dipole_dipole",
+                     "dipole_induced_dipole"]}, bodies,
         masses_kg=[1e-14, 2e-14], radii_m=[1e-6, 1e-6])
     assert [type(p) for p in pots] == [NewtonianGravity, Coulomb, RetardedCasimirPolder, ChargeInducedDipole,
-                                       DipoleDipole]
+                                       DipoleDipole, DipoleInducedDipole]
     assert pots[1].charge_b_c == -e and pots[2].permittivity_a == 5.7 and pots[2].permittivity_b == 3.8
     screened = potentials_from_tables({"include": ["gravity", "coulomb"], "conducting_screen": True}, bodies,
                                       masses_kg=[1e-14, 2e-14], radii_m=[1e-6, 1e-6])
@@ -67,6 +69,8 @@ def test_tables_become_potentials_in_order_with_gravity_first():
     (["casimir_polder"], [{"material": "diamond"}, {"material": "diamond"}], [None, 1e-6], ProtocolError,
      "radius_m"),
     (["coulomb"], [{}, {}], [1e-6, 1e-6], ProtocolError, "charge_c"),
+    (["dipole_induced_dipole"], [{"material": "diamond"}, {"material": "diamond"}], [1e-6, 1e-6], ProtocolError,
+     "orientation"),
     (["london_van_der_waals"], [{"material": "diamond"}, {"material": "diamond"}], [1e-6, 1e-6], ProtocolError,
      "dispersion_resonance_rad_s"),
 ])
