@@ -69,6 +69,7 @@ from gqsim.statistics import (
 from gqsim.witness_design import (
     ReadoutModel,
     Witness,
+    check_separable_bound,
     optimal_ppt_witness,
     parse_witness,
     setting_table,
@@ -117,9 +118,12 @@ class CustomWitness:
                                 "must be 'below' or 'above'")
 
     def build(self, dims: tuple[int, int]) -> Witness:
-        return parse_witness(self.expression, dims, bound=float(self.separable_bound),
-                             entangled_if=self.entangled_if, name=self.label,
-                             key=f"witnesses.custom[{self.label}].expression")
+        """Parse the expression and refuse a bound that some product state crosses."""
+        w = parse_witness(self.expression, dims, bound=float(self.separable_bound),
+                          entangled_if=self.entangled_if, name=self.label,
+                          key=f"witnesses.custom[{self.label}].expression")
+        check_separable_bound(w, key=f"witnesses.custom[{self.label}].separable_bound")
+        return w
 
 
 @dataclass(frozen=True, kw_only=True)

@@ -118,6 +118,8 @@ def test_duan_plan_from_covariances():
     ({"witnesses": {"custom": [{"label": "w", "expression": "X@Q", "separable_bound": 0}]}}, "witnesses.custom[w]"),
     ({"witnesses": {"custom": [{"label": "w", "expression": "1j*X@Z", "separable_bound": 0}]}}, "witnesses.custom[w]"),
     ({"witnesses": {"custom": [{"label": "w", "expression": "X@Z"}]}}, "witnesses.custom[0].separable_bound"),
+    ({"witnesses": {"custom": [{"label": "w", "expression": "1 - X@Z - Y@Y", "separable_bound": 0.5}]}},
+     "witnesses.custom[w].separable_bound"),
 ])
 def test_bad_certification_file_is_one_line_error(data, key):
     times = np.array([1.0, 2.0])

@@ -11,12 +11,14 @@ from hypothesis import strategies as st
 from gqsim.errors import ProtocolError
 from gqsim.witness_design import (
     ReadoutModel,
+    check_separable_bound,
     decompose,
     group_settings,
     local_operator,
     local_operator_names,
     optimal_ppt_witness,
     parse_witness,
+    separable_extremum,
     setting_table,
     spin_correlation_witness,
     witness_from_operator,
@@ -265,3 +267,33 @@ def test_uncorrectable_assignment_is_refused():
     model = ReadoutModel(assignment_fidelity_a=[0.5, 0.5])
     with pytest.raises(ProtocolError, match="too low to correct"):
         setting_table(spin_correlation_witness(), cz_plus_plus(1.0), model)
+
+
+# ---- separable bound check -------------------------------------------------------------
+
+@pytest.mark.parametrize("text, bound, side, extremum", [
+    # Cauchy-Schwarz on Bloch vectors (physics-references Sec. 1.5): x1 z2 + y1 y2 <= 1 on products.
+    ("X@Z + Y@Y", 1.0, "above", 1.0),
+    # 1 - (x1 z2 + y1 y2 + z1 x2) >= 0 on products (largest singular value of the correlation map is 1).
+    ("1 - X@Z - Y@Y - Z@X", 0.0, "below", 0.0),
+    # <XX + YY + ZZ> >= -1 on products (a . b >= -1), while the singlet reaches -3 (textbook).
+    ("X@X + Y@Y + Z@Z", -1.0, "below", -1.0),
+])
+def test_separable_extremum_matches_product_state_analytics(text, bound, side, extremum):
+    w = parse_witness(text, (2, 2), bound=bound, entangled_if=side)
+    assert separable_extremum(w) == pytest.approx(extremum, abs=1e-9)
+    assert check_separable_bound(w) == pytest.approx(extremum, abs=1e-9)
+
+
+def test_ppt_witness_is_nonnegative_on_product_states():
+    # Guhne & Toth 2009: Tr(W sigma) >= 0 on separable states; the search must not go below 0.
+    rng = np.random.default_rng(5)
+    for dims in [(2, 2), (3, 3), (2, 4)]:
+        w = optimal_ppt_witness(random_density(rng, dims[0] * dims[1], 1), dims)
+        assert separable_extremum(w) >= -ATOL
+
+
+def test_wrong_user_bound_is_refused():
+    w = parse_witness("X@Z + Y@Y", (2, 2), bound=0.8, entangled_if="above")
+    with pytest.raises(ProtocolError, match="product .separable. state gives 1"):
+        check_separable_bound(w, key="witnesses.custom[w].separable_bound")
