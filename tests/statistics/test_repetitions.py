@@ -188,3 +188,41 @@ def test_order_of_magnitude_against_schut_2022():
     rho = dephased(cz_plus_plus(omega * t), (2, 2), gamma * t)
     plan = plan_repetitions(setting_table(optimal_ppt_witness(rho, (2, 2)), rho), confidence=0.999)
     assert 1e3 <= plan.total[0] <= 1e6
+
+
+from hypothesis import given, settings  # noqa: E402
+from hypothesis import strategies as st  # noqa: E402
+
+
+@settings(derandomize=True, max_examples=30, deadline=None)
+@given(theta=st.floats(1.7, 3.1), scale=st.floats(0.01, 100.0), offset=st.floats(-5.0, 5.0))
+def test_repetitions_do_not_depend_on_witness_normalisation(theta, scale, offset):
+    # Rescaling W -> c W + b I (c > 0) with the bound -> c bound + b changes neither the decision
+    # nor the statistics (margin and single-shot sd both scale by c; b needs no measurement).
+    rho = cz_plus_plus(theta)
+    ref = parse_witness("X@Z + Y@Y", (2, 2), bound=1.0, entangled_if="above")
+    text = f"{offset!r} + {scale!r}*X@Z + {scale!r}*Y@Y".replace("+ -", "- ")
+    scaled = parse_witness(text, (2, 2), bound=scale * 1.0 + offset, entangled_if="above")
+    a = plan_repetitions(setting_table(ref, rho), sigmas=3.0)
+    b = plan_repetitions(setting_table(scaled, rho), sigmas=3.0)
+    np.testing.assert_array_equal(a.per_setting, b.per_setting)
+
+
+@settings(derandomize=True, max_examples=30, deadline=None)
+@given(seed=st.integers(0, 2**32 - 1), fa0=st.floats(0.6, 1.0), fa1=st.floats(0.6, 1.0), fb=st.floats(0.6, 1.0),
+       eta=st.floats(0.05, 1.0))
+def test_corrected_readout_is_unbiased_and_never_cheaper(seed, fa0, fa1, fb, eta):
+    # The inverse-assignment estimator g has mean Tr(W rho) for any invertible assignment matrix
+    # (linear algebra: E[g | true outcome i] = lambda_i), so by Jensen E[g^2 | i] >= lambda_i^2 and
+    # every setting's single-shot variance can only grow (derived here); losses only remove shots.
+    from tests.statistics.stat_states import random_density
+
+    rng = np.random.default_rng(seed)
+    rho = random_density(rng, 4)
+    w = optimal_ppt_witness(random_density(rng, 4, 1), (2, 2))
+    ideal = plan_repetitions(setting_table(w, rho), sigmas=2.0)
+    model = ReadoutModel(assignment_fidelity_a=[fa0, fa1], assignment_fidelity_b=fb, detection_efficiency_a=eta)
+    noisy = plan_repetitions(setting_table(w, rho, model), sigmas=2.0)
+    assert noisy.values[0] == pytest.approx(float(w.value(rho)), abs=ATOL)
+    if np.isfinite(ideal.total[0]):
+        assert noisy.total[0] >= ideal.total[0]
