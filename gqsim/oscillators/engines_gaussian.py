@@ -107,16 +107,18 @@ def _pieces(boundaries: np.ndarray, start: float, stop: float):
 
 
 def evolve_gaussian(model: OscillatorModel, dynamics: OpenDynamics,
-                    times_s: np.ndarray | None = None) -> GaussianTrajectory:
+                    times_s: np.ndarray | None = None, *, initial: tuple | None = None) -> GaussianTrajectory:
     """Propagate the initial Gaussian state of ``model`` over ``times_s`` [s] exactly.
 
     Returns a :class:`GaussianTrajectory` in the scaled units of the model (quadratures x, p
-    with [x, p] = i; sigma_jk = <{dr_j, dr_k}>, vacuum sigma = I).
+    with [x, p] = i; sigma_jk = <{dr_j, dr_k}>, vacuum sigma = I). ``initial = (mean, cov)``
+    propagates given first and second moments instead (the moment equations hold for any
+    state under quadratic dynamics; the Fock engine uses this to size its cutoff).
     """
-    if not all(b.initial.kind == "gaussian" for b in model.setup.bodies):
+    if initial is None and not all(b.initial.kind == "gaussian" for b in model.setup.bodies):
         raise PhysicsError("bodies.initial.kind", [b.initial.kind for b in model.setup.bodies],
                            "the Gaussian engine needs Gaussian initial states; use solver.engine = \"fock\"")
-    if model.anharmonic:
+    if initial is None and model.anharmonic:
         raise PhysicsError("solver.anharmonic_order", model.setup.solver.anharmonic_order,
                            "cubic/quartic terms are not Gaussian; use solver.engine = \"fock\"")
     times = np.asarray(model.setup.times_s if times_s is None else times_s, dtype=float)
@@ -141,7 +143,7 @@ def evolve_gaussian(model: OscillatorModel, dynamics: OpenDynamics,
             cache[key] = (_mean_step(a, forces[stage], tau), cov_step)
         return cache[key]
 
-    mean, cov = initial_moments(model)
+    mean, cov = initial_moments(model) if initial is None else (np.array(initial[0]), np.array(initial[1]))
     means = np.empty((times.size, 2 * n))
     covs = np.empty((times.size, 2 * n, 2 * n))
     t = 0.0

@@ -160,24 +160,40 @@ def gaussian_series(model: OscillatorModel, means: np.ndarray, covs: np.ndarray)
     return series, {"final_covariance_scaled": covs[-1].tolist()}
 
 
+#: tolerance on the sign-type criteria (Simon, Duan) before they count as signalling entanglement:
+#: their values are O(1) combinations of covariance entries, so a few float64 ulps.
+CRITERION_FLOOR = 1e-12
+
+
 def _entanglement_summary(times: np.ndarray, series: dict) -> dict:
-    en = series["log_negativity"]
-    k = int(np.argmax(en))
-    out = {
-        "log_negativity_max": float(en[k]),
-        "log_negativity_max_time_s": float(times[k]),
-        "log_negativity_final": float(en[-1]),
-        "entangled_windows_s": [(w.start_s, w.stop_s) for w in entangled_windows(times, en > EN_FLOOR)],
-        "ever_entangled": bool(np.any(en > EN_FLOOR)),
-    }
-    if "duan" in series:
-        ratio = series["duan"] / series["duan_bound"]
-        j = int(np.argmin(ratio))
-        out["duan_best"] = {"time_s": float(times[j]), "value": float(series["duan"][j]),
-                            "bound": float(series["duan_bound"][j]), "scaling_a": float(series["duan_scaling"][j]),
-                            "rotation_rad": float(series["duan_rotation_rad"][j]),
-                            "combination": "u = a x1' + x2'/a, v = a p1' - p2'/a with local rotations summing to "
-                                           "-rotation_rad"}
+    """One entry per series (max, time of max, windows where it signals entanglement)."""
+    out: dict = {}
+    for name, values in series.items():
+        k = int(np.argmax(values))
+        entry = {"max": float(values[k]), "time_of_max_s": float(times[k])}
+        base = name.split("[")[0]
+        signal = None
+        if base in ("log_negativity",):
+            signal = values > EN_FLOOR
+        elif base in ("simon", "simon_min_eigenvalue"):
+            j = int(np.argmin(values))
+            entry.update({"min": float(values[j]), "time_of_min_s": float(times[j])})
+            signal = values < -CRITERION_FLOOR
+        elif base == "duan":
+            ratio = values / series["duan_bound"]
+            j = int(np.argmin(ratio))
+            entry.update({"min": float(values[j]), "time_of_min_s": float(times[j]),
+                          "bound_at_min": float(series["duan_bound"][j]),
+                          "scaling_a_at_min": float(series["duan_scaling"][j]),
+                          "rotation_rad_at_min": float(series["duan_rotation_rad"][j]),
+                          "combination": "u = a x1' + x2'/a, v = a p1' - p2'/a, local rotations t1 + t2 = "
+                                         "-rotation_rad"})
+            signal = values < series["duan_bound"] * (1 - CRITERION_FLOOR)
+        if signal is not None:
+            windows = entangled_windows(times, signal)
+            entry["entangled_windows_s"] = [[w.start_s, w.stop_s] for w in windows]
+            entry["signals_entanglement"] = bool(windows)
+        out[name] = entry
     return out
 
 
@@ -219,7 +235,7 @@ def analytic_companions(model: OscillatorModel, series: dict) -> dict:
     out: dict = {}
     if len(bodies) != 2 or model.n_modes != 2:
         out["note"] = "analytic companions are printed for two single-mode bodies only"
-        return out
+        return _flatten(out)
     a, b = bodies
     d = float(np.linalg.norm(np.subtract(b.position_m, a.position_m)))
     wa, wb = model.scales.omega_ref_rad_s
@@ -256,10 +272,22 @@ def analytic_companions(model: OscillatorModel, series: dict) -> dict:
                 out["free_fall"] = _pair(value, float(en[-1] - en_before),
                                          "(2/3) e^{2r} (G m/d^3) omega0 t^3 over the last (free) stage",
                                          "simulated E_N gained in the free stage")
-    return out
+    return _flatten(out)
 
 
 def _pair(analytic_value: float, simulated: float, formula: str, against: str) -> dict:
     ratio = simulated / analytic_value if analytic_value != 0 else float("nan")
     return {"analytic": float(analytic_value), "simulated": float(simulated),
             "ratio": ratio if math.isfinite(ratio) else None, "formula": formula, "simulated_is": against}
+
+
+def _flatten(companions: dict) -> dict:
+    """{name: {analytic, simulated, ratio, ...}} -> flat scalar keys the summary table prints."""
+    flat: dict = {}
+    for key, value in companions.items():
+        if isinstance(value, dict):
+            for sub, item in value.items():
+                flat[f"{key}_{sub}"] = item
+        else:
+            flat[key] = value
+    return flat
