@@ -63,6 +63,7 @@ from scipy.constants import k as k_B
 from scipy.optimize import brentq
 
 from gqsim.errors import PhysicsError, ProtocolError
+from gqsim.potentials import pair_energy_at, pair_hessian_at  # noqa: F401  (re-exported)
 from gqsim.potentials import NewtonianGravity
 
 __all__ = [
@@ -667,37 +668,6 @@ class DipoleInducedDipole:
                         + 80.0 * pr**2 * ri * rj / r**12)
             out = out + alpha * (term_iso + 3.0 * term_dir)
         return -0.5 * _COULOMB_K * out
-
-
-def pair_energy_at(potential, separation_m) -> np.ndarray:
-    """U at separation vectors (..., 3) [m] -> (...) [J] for any pair potential.
-
-    Uses ``energy_from_vector_j`` when the potential has it (orientation dependent),
-    otherwise ``energy_j(|r|)``.
-    """
-    vectors = np.asarray(separation_m, dtype=float)
-    method = getattr(potential, "energy_from_vector_j", None)
-    if method is not None:
-        return method(vectors)
-    return potential.energy_j(np.linalg.norm(vectors, axis=-1))
-
-
-def pair_hessian_at(potential, separation_m) -> np.ndarray:
-    """d^2 U/dr_i dr_j at separation vectors (..., 3) [m] -> (..., 3, 3) [J/m^2].
-
-    Central potentials: H = U'' n n^T + (U'/r)(I - n n^T), n = r/|r| (chain rule,
-    common practice); otherwise the potential's own ``hessian_from_vector``.
-    """
-    vectors = np.asarray(separation_m, dtype=float)
-    method = getattr(potential, "hessian_from_vector", None)
-    if method is not None:
-        return method(vectors)
-    r = _separation(np.linalg.norm(vectors, axis=-1))
-    n = vectors / r[..., None]
-    nn = n[..., :, None] * n[..., None, :]
-    d1 = np.asarray(potential.radial_derivative(r, 1))[..., None, None]
-    d2 = np.asarray(potential.radial_derivative(r, 2))[..., None, None]
-    return d2 * nn + (d1 / r[..., None, None]) * (np.eye(3) - nn)
 
 
 # ----------------------------------------------------------------------------- attribution

@@ -27,7 +27,7 @@ import numpy as np
 from scipy.constants import G, hbar
 
 from gqsim.errors import EngineError
-from gqsim.potentials import NewtonianGravity
+from gqsim.potentials import NewtonianGravity, pair_energy_at
 from gqsim.setup import SuperpositionSetup
 
 __all__ = [
@@ -76,9 +76,10 @@ class SuperpositionModel:
         return base[None] + np.asarray(sigma, float)[:, None, None, None] * q[None]
 
     def pair_energies_j(self, sigma: np.ndarray) -> np.ndarray:
-        """(n, d_A, d_B) E_ab [J] at split fractions ``sigma``."""
-        r = np.linalg.norm(self.relative_vectors(np.atleast_1d(sigma)), axis=-1)
-        return sum(p.energy_j(r) for p in self.potentials)
+        """(n, d_A, d_B) E_ab [J] at split fractions ``sigma``; orientation-dependent potentials
+        (fixed dipoles) see the separation vector r_a^A - r_b^B."""
+        vectors = self.relative_vectors(np.atleast_1d(sigma))
+        return sum(pair_energy_at(p, vectors) for p in self.potentials)
 
     # --------------------------------------------------------------- phases
     def phases_rad(self, times_s: np.ndarray) -> np.ndarray:

@@ -26,7 +26,7 @@ from scipy.constants import G
 
 from gqsim.errors import ProtocolError
 
-__all__ = ["PairPotential", "NewtonianGravity"]
+__all__ = ["PairPotential", "NewtonianGravity", "pair_energy_at", "pair_hessian_at"]
 
 
 @runtime_checkable
@@ -75,3 +75,36 @@ class NewtonianGravity:
         if order == 2:
             return -2.0 * k / r**3
         raise ValueError(f"order must be 1 or 2, got {order}")
+
+
+def pair_energy_at(potential, separation_m) -> np.ndarray:
+    """U at separation vectors (..., 3) [m] -> (...) [J] for any pair potential.
+
+    Uses the optional ``energy_from_vector_j`` of orientation-dependent potentials
+    (e.g. fixed permanent dipoles), otherwise ``energy_j(|r|)``.
+    """
+    vectors = np.asarray(separation_m, dtype=float)
+    method = getattr(potential, "energy_from_vector_j", None)
+    if method is not None:
+        return method(vectors)
+    return potential.energy_j(np.linalg.norm(vectors, axis=-1))
+
+
+def pair_hessian_at(potential, separation_m) -> np.ndarray:
+    """d^2 U/dr_i dr_j at separation vectors (..., 3) [m] -> (..., 3, 3) [J/m^2].
+
+    Central potentials: H = U'' n n^T + (U'/r)(I - n n^T), n = r/|r| (chain rule,
+    common practice); otherwise the potential's own ``hessian_from_vector``.
+    """
+    vectors = np.asarray(separation_m, dtype=float)
+    method = getattr(potential, "hessian_from_vector", None)
+    if method is not None:
+        return method(vectors)
+    r = np.linalg.norm(vectors, axis=-1)
+    if np.any(r <= 0) or not np.all(np.isfinite(r)):
+        raise ValueError("pair separations must be finite and > 0 m")
+    n = vectors / r[..., None]
+    nn = n[..., :, None] * n[..., None, :]
+    d1 = np.asarray(potential.radial_derivative(r, 1))[..., None, None]
+    d2 = np.asarray(potential.radial_derivative(r, 2))[..., None, None]
+    return d2 * nn + (d1 / r[..., None, None]) * (np.eye(3) - nn)

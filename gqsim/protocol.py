@@ -29,7 +29,7 @@ import jsonschema
 
 from gqsim.errors import ProtocolError
 
-__all__ = ["Protocol", "SCHEMA_VERSION", "FAMILIES", "load_protocol", "parse_protocol", "schema_for"]
+__all__ = ["Protocol", "SCHEMA_VERSION", "FAMILIES", "FAMILY_FRAGMENTS", "load_protocol", "parse_protocol", "schema_for"]
 
 SCHEMA_VERSION = 1
 
@@ -59,11 +59,33 @@ class Protocol:
         return copy.deepcopy(self._plain)
 
 
-def schema_for(family: str, version: int = SCHEMA_VERSION) -> dict:
-    """Return the JSON schema of ``family`` at ``version`` (loaded from package data)."""
-    name = f"{family}-v{version}.schema.json"
+#: family -> schema fragments merged into its schema (files gqsim/schemas/<name>.fragment.json).
+#: A fragment either carries ``body_properties`` (added to every ``[[bodies]]`` entry) and/or
+#: ``top_level_properties`` (added as top-level tables), or is itself a table schema that becomes
+#: the top-level table named by the fragment's stem (``environment-v1`` -> ``[environment]``).
+FAMILY_FRAGMENTS: dict[str, tuple[str, ...]] = {
+    "superposition": ("confounders-v1", "environment-v1"),
+    "oscillators": (),
+}
+
+
+def _read_schema_file(name: str) -> dict:
     text = resources.files("gqsim").joinpath("schemas").joinpath(name).read_text(encoding="utf-8")
     return json.loads(text)
+
+
+def schema_for(family: str, version: int = SCHEMA_VERSION) -> dict:
+    """Return the JSON schema of ``family`` at ``version`` with its fragments merged (package data)."""
+    schema = _read_schema_file(f"{family}-v{version}.schema.json")
+    for fragment_name in FAMILY_FRAGMENTS.get(family, ()):
+        fragment = _read_schema_file(f"{fragment_name}.fragment.json")
+        if "body_properties" in fragment or "top_level_properties" in fragment:
+            schema["properties"]["bodies"]["items"]["properties"].update(fragment.get("body_properties", {}))
+            schema["properties"].update(fragment.get("top_level_properties", {}))
+        else:
+            table = {k: v for k, v in fragment.items() if k not in ("$schema", "$id")}
+            schema["properties"][fragment_name.split("-v")[0]] = table
+    return schema
 
 
 def load_protocol(path: str | Path) -> Protocol:

@@ -56,6 +56,16 @@ def _num(value: Any) -> str:
     return str(value)
 
 
+def _rows_table(rows) -> list[str]:
+    """A small fixed-width table of a list of flat records (e.g. a force budget)."""
+    columns = [k for k in rows[0] if not isinstance(rows[0][k], (Mapping, list, tuple))]
+    width = 2 + max(max(len(c) for c in columns), *(len(_num(r.get(c))) for r in rows for c in columns))
+    out = ["  " + "".join(f"{c:>{width}}" for c in columns)]
+    for row in rows:
+        out.append("  " + "".join(f"{_num(row.get(c)):>{width}}" for c in columns))
+    return out
+
+
 def summary_table(result: Result) -> str:
     """Readable multi-line summary: one row per measure, then the analytic companions."""
     title = result.summary.get("title") or "(untitled protocol)"
@@ -83,6 +93,9 @@ def summary_table(result: Result) -> str:
             for key, value in values.items():
                 if not isinstance(value, (Mapping, list, tuple)):
                     lines.append(f"  {_key_label(key):<42} {_num(value)}")
+            rows = values.get("rows")
+            if isinstance(rows, (list, tuple)) and rows and all(isinstance(r, Mapping) for r in rows):
+                lines.extend(_rows_table(rows))
     for note in result.notes:
         lines += ["", f"note: {note}"]
     return "\n".join(lines)

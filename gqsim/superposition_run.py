@@ -6,6 +6,8 @@ from __future__ import annotations
 import numpy as np
 
 from gqsim.channels import body_channel
+from gqsim.confounders import potentials_from_tables
+from gqsim.force_budget import superposition_budget
 from gqsim.engines import closed_form, lindblad
 from gqsim.errors import PhysicsError, ProtocolError
 from gqsim.measures import LOG_BASES, concurrence, log_negativity, negativity, purity
@@ -29,11 +31,37 @@ _UNITS = {"negativity": "1", "concurrence": "1", "witness_lab": "1", "witness_op
 
 
 def build(protocol: Protocol) -> SuperpositionModel:
-    """Validate ``protocol`` down to the model (overlaps, units, engine support)."""
+    """Validate ``protocol`` down to the model (overlaps, units, engine support).
+
+    The pair potentials are gravity alone, or those named in ``[interactions].include``
+    (Casimir-Polder, Coulomb, dipole terms from :mod:`gqsim.confounders`).
+    """
     setup = build_superposition_setup(protocol)
-    model = build_superposition_model(setup)
+    interactions = protocol.data.get("interactions")
+    if interactions is None:
+        model = build_superposition_model(setup)
+    else:
+        tables = [dict(t) for t in protocol.data["bodies"]]
+        potentials = potentials_from_tables(dict(interactions), tables,
+                                            masses_kg=[b.mass_kg for b in setup.bodies],
+                                            radii_m=[b.radius_m for b in setup.bodies])
+        model = SuperpositionModel(setup=setup, potentials=tuple(potentials))
     _choose_engine(model, setup.engine)
     return model
+
+
+def _unused_body_keys(protocol: Protocol) -> list[str]:
+    """Notes for electromagnetic body keys given without the force that would use them."""
+    include = set((protocol.data.get("interactions") or {}).get("include", ("gravity",)))
+    needs = {"charge_c": ("coulomb", "charge_induced_dipole"), "dipole_c_m": ("dipole_dipole", "dipole_induced_dipole"),
+             "dispersion_resonance_rad_s": ("london_van_der_waals",)}
+    notes = []
+    for i, body in enumerate(protocol.data["bodies"]):
+        for key, forces in needs.items():
+            if key in body and not include.intersection(forces):
+                notes.append(f"bodies[{i}].{key} is given but [interactions].include lists none of "
+                             f"{', '.join(forces)}, so it has no effect")
+    return notes
 
 
 def _choose_engine(model: SuperpositionModel, requested: str) -> str:
@@ -111,6 +139,11 @@ def simulate(protocol: Protocol, *, engine: str | None = None) -> Result:
                                 model.entangling_phase_rad(times))
     units = {k: (LOG_BASES[setup.log_base][1] if k == "log_negativity" else _UNITS[k]) for k in series}
     summary, notes = _summarise(model, series, times, states, chosen)
+    notes.extend(_unused_body_keys(protocol))
+    if protocol.data.get("interactions") is not None:
+        budget = superposition_budget(protocol.to_dict(), source=protocol.source)
+        summary["force_budget"] = budget.to_json_dict()
+        notes.extend(budget.notes)
     provenance = Provenance(protocol=protocol.to_dict(), source=protocol.source, engine=chosen,
                             options={"rtol": setup.rtol, "atol": setup.atol, **stats},
                             versions=package_versions())

@@ -25,7 +25,7 @@ from gqsim.force_budget import force_budget, superposition_budget
 from gqsim.potentials import NewtonianGravity
 from gqsim.protocol import schema_for
 
-PROTOCOLS = Path(__file__).resolve().parents[2] / "protocols" / "forces"
+PROTOCOLS = Path(__file__).resolve().parents[2] / "protocols"
 QUOTED_6SF = 5e-6
 
 
