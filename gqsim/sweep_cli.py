@@ -100,8 +100,9 @@ def threshold_command(store, axis, figure, target, tolerance, as_json):
 @click.option("--figure", default="max_log_negativity", show_default=True)
 @click.option("--x", "x_axis", default=None, help="Axis label on the horizontal axis (default: last axis).")
 @click.option("--y", "y_axis", default=None, help="Axis label on the vertical axis (default: first other axis).")
-@click.option("--boundary", type=click.Choice(["entangled", "min_pt_eigenvalue"]), default="entangled",
-              show_default=True, help="Figure whose level set is drawn as the entanglement boundary.")
+@click.option("--boundary", type=click.Choice(["entangled", "min_pt_eigenvalue"]), default=None,
+              help="Figure whose level set is drawn as the entanglement boundary "
+                   "(default: the zero of min_pt_eigenvalue when stored).")
 @click.option("--out", "out_path", type=click.Path(dir_okay=False, path_type=Path), required=True,
               help="Image file to write (png, pdf, svg).")
 def map_command(store, figure, x_axis, y_axis, boundary, out_path):
@@ -120,7 +121,7 @@ def map_command(store, figure, x_axis, y_axis, boundary, out_path):
     if figure not in ds or figure in ("status", "message"):
         raise ProtocolError("--figure", figure, f"must be a stored figure: {json.loads(ds.attrs['figure_names'])}")
     fig = plot_feasibility_slices(ds, figure, x=x_axis, y=y_axis, boundary=boundary)
-    fig.savefig(out_path, dpi=120)
+    fig.savefig(out_path, dpi=120, bbox_inches="tight")
     click.echo(f"map written to {out_path}")
 
 

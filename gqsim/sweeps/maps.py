@@ -20,13 +20,16 @@ def _spacing(ds: xr.Dataset, dim: str) -> str:
 
 
 def plot_feasibility(ds: xr.Dataset, figure: str = "max_log_negativity", *, x: str | None = None,
-                     y: str | None = None, boundary: str = "entangled", ax=None, fixed: dict | None = None):
+                     y: str | None = None, boundary: str | None = None, ax=None, fixed: dict | None = None):
     """Colour map of ``figure`` over axes ``x`` (horizontal) and ``y``; boundary contour on top.
 
-    ``fixed`` selects one value (by label -> index) of every further axis.
+    ``boundary`` is ``"min_pt_eigenvalue"`` (its zero level, interpolated; the default when
+    stored) or ``"entangled"`` (the 0/1 map's half level). ``fixed`` selects one value (by
+    label -> index) of every further axis.
     """
     import matplotlib.pyplot as plt
 
+    boundary = boundary or ("min_pt_eigenvalue" if "min_pt_eigenvalue" in ds else "entangled")
     dims = [d for d in ds[figure].dims]
     fixed = dict(fixed or {})
     x = x or dims[-1]
@@ -60,7 +63,7 @@ def plot_feasibility(ds: xr.Dataset, figure: str = "max_log_negativity", *, x: s
 
 
 def plot_feasibility_slices(ds: xr.Dataset, figure: str = "max_log_negativity", *, x: str | None = None,
-                            y: str | None = None, across: str | None = None, boundary: str = "entangled",
+                            y: str | None = None, across: str | None = None, boundary: str | None = None,
                             max_panels: int = 6):
     """A row of :func:`plot_feasibility` panels, one per value of axis ``across`` (at most
     ``max_panels``, evenly picked); further axes at their first value. Returns the figure."""

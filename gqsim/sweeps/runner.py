@@ -164,7 +164,7 @@ def _dask(definition, route, blocks, address) -> Iterator:
     try:
         futures = {client.submit(compute_block, definition, route, _wire(b), pure=False, retries=2): b
                    for b in blocks}
-        for future in as_completed(list(futures)):
+        for future in as_completed(list(futures), loop=client.loop):
             yield futures[future], future.result()
     finally:
         client.close()

@@ -210,7 +210,8 @@ def get_path(data: Mapping[str, Any], path: str) -> list:
 
 
 def set_path(data: dict, path: str, value: Any) -> None:
-    """Set ``value`` at ``path`` in place; the last key may be new (the schema then judges it)."""
+    """Set ``value`` at ``path`` in place; missing tables and the last key are created (the
+    schema then judges them), list entries must exist."""
     tokens = split_path(path)
     parents = [data]
     for token in tokens[:-1]:
@@ -220,8 +221,8 @@ def set_path(data: dict, path: str, value: Any) -> None:
                 nxt.extend(node)
             elif isinstance(token, int) and isinstance(node, list) and -len(node) <= token < len(node):
                 nxt.append(node[token])
-            elif isinstance(token, str) and isinstance(node, dict) and token in node:
-                nxt.append(node[token])
+            elif isinstance(token, str) and token != "*" and isinstance(node, dict):
+                nxt.append(node.setdefault(token, {}))  # a missing table is created; the schema judges it
             else:
                 raise ProtocolError("path", path, f"has no table or list {token!r} in the base protocol")
         parents = nxt
