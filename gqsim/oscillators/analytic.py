@@ -31,7 +31,7 @@ def coupling_rate_rad_s(mass_a_kg: float, mass_b_kg: float, omega_a_rad_s: float
                         distance_m: float) -> float:
     """g = 2 G m_a m_b x_zpf,a x_zpf,b / (hbar d^3) [rad/s] (coupling along the line of centres).
 
-    Second-order expansion of -G m_a m_b / |d + x_b - x_a| (Eq. (2.1) of [GqsimRefs2026] and
+    Second-order expansion of -G m_a m_b / |d + x_b - x_a| (small-oscillation expansion, Ch. 6 of [Goldstein2002], as in
     [Krisnanda2020]) with x = x_zpf (a + a^dag), x_zpf = sqrt(hbar / (2 m omega)).
     """
     zpf_a = math.sqrt(hbar / (2 * mass_a_kg * omega_a_rad_s))

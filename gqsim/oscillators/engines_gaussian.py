@@ -32,7 +32,7 @@ from gqsim.errors import EngineError, PhysicsError
 from gqsim.oscillators.channels import OpenDynamics
 from gqsim.oscillators.model import OscillatorModel, initial_moments, symplectic_form
 
-__all__ = ["GaussianTrajectory", "van_loan", "evolve_gaussian"]
+__all__ = ["GaussianTrajectory", "van_loan", "evolve_gaussian", "ground_state_covariance"]
 
 #: step lengths equal to this relative precision share one cached propagator (uniform grids
 #: computed with linspace differ in the last bits).
@@ -167,3 +167,34 @@ def evolve_gaussian(model: OscillatorModel, dynamics: OpenDynamics,
         raise EngineError("gaussian engine: non-finite covariance (an inverted or free stage grew the state "
                           "beyond floating-point range); shorten the stage")
     return GaussianTrajectory(times, means, covs)
+
+
+def ground_state_covariance(hamiltonian: np.ndarray) -> np.ndarray:
+    """Covariance (vacuum units) of the ground state of H = 1/2 x^T V x + 1/2 p^T T p.
+
+    ``hamiltonian`` is the (2n, 2n) matrix of a stage (interleaved x, p ordering, no x-p terms).
+    With q = T^{-1/2} x, pi = T^{1/2} p the Hamiltonian becomes 1/2 pi^2 + 1/2 q^T W q,
+    W = T^{1/2} V T^{1/2}, whose ground state has Var(q) = W^{-1/2}/2, Var(pi) = W^{1/2}/2
+    (normal modes, Ch. 6 of [Goldstein2002]; Gaussian ground state, [Serafini2017]). Raises
+    PhysicsError when H is not positive definite (no ground state).
+    """
+    v = hamiltonian[0::2, 0::2]
+    t = hamiltonian[1::2, 1::2]
+    if np.any(hamiltonian[0::2, 1::2]):
+        raise PhysicsError("hamiltonian", "x-p terms", "ground_state_covariance needs H without x-p cross terms")
+    tw, tu = np.linalg.eigh(t)
+    if np.any(tw <= 0):
+        raise PhysicsError("hamiltonian", "kinetic block", "must be positive definite")
+    t_half = tu @ np.diag(np.sqrt(tw)) @ tu.T
+    w = t_half @ v @ t_half
+    ww, wu = np.linalg.eigh(0.5 * (w + w.T))
+    if np.any(ww <= 0):
+        raise PhysicsError("hamiltonian", "potential block", "has a non-positive normal mode: no ground state")
+    w_inv_half = wu @ np.diag(ww ** -0.5) @ wu.T
+    w_half = wu @ np.diag(ww ** 0.5) @ wu.T
+    t_inv_half = tu @ np.diag(tw ** -0.5) @ tu.T
+    n = v.shape[0]
+    cov = np.zeros((2 * n, 2 * n))
+    cov[0::2, 0::2] = t_half @ w_inv_half @ t_half
+    cov[1::2, 1::2] = t_inv_half @ w_half @ t_inv_half
+    return 0.5 * (cov + cov.T)

@@ -20,7 +20,7 @@ relative to 1 here. Everything downstream (channels, engines, measures) works in
 units and converts back only through :class:`Scales`.
 
 Hessian of a central pair potential (second-order expansion of V(|R + u_b - u_a|)
-around the equilibrium separation R = d n, Eq. (2.1) of [GqsimRefs2026]):
+around the equilibrium separation R = d n; small-oscillation expansion, Ch. 6 of [Goldstein2002]):
     V ~ V(d) + V'(d) n.(u_b - u_a) + 1/2 (u_b - u_a)^T Hess (u_b - u_a),
     Hess = V''(d) n n^T + V'(d)/d (I - n n^T).
 For gravity V = -G m_a m_b / r this gives +2 G m_a m_b x_a x_b / d^3 along the axis with
@@ -87,7 +87,7 @@ def pair_hessian(potential: PairPotential, separation_m: np.ndarray) -> tuple[np
     """Force and Hessian of a central pair potential at separation vector R = r_b - r_a.
 
     Implements Hess = V''(d) n n^T + V'(d)/d (I - n n^T) (second-order Taylor expansion of
-    V(|R + u|), see Eq. (2.1) of [GqsimRefs2026]).
+    V(|R + u|), Ch. 6 of [Goldstein2002]).
 
     Parameters
     ----------
