@@ -63,7 +63,7 @@ def phase_state_measures(theta: np.ndarray, q_a: np.ndarray, q_b: np.ndarray, lo
         1 + qa * qb - np.sqrt(c**2 * (qa + qb) ** 2 + s**2 * (qa - qb) ** 2),
         1 - qa * qb - np.sqrt(c**2 * (qa - qb) ** 2 + s**2 * (qa + qb) ** 2),
     ) / 4
-    neg = np.maximum(0.0, -lam_min)
+    neg = np.maximum(0.0, -lam_min) + 0.0  # + 0.0 turns -0.0 into 0.0
     log, _ = LOG_BASES[log_base]
     a, b, z = qa * c, qb * c, qa * qb
     conc = 0.5 * np.maximum(np.maximum(

@@ -93,6 +93,11 @@ def summary_table(result: Result) -> str:
             for key, value in values.items():
                 if not isinstance(value, (Mapping, list, tuple)):
                     lines.append(f"  {_key_label(key):<42} {_num(value)}")
+            for key, value in values.items():
+                if isinstance(value, Mapping) and value and all(
+                        not isinstance(v, (Mapping, list, tuple)) for v in value.values()):
+                    lines.append(f"  {key}:")
+                    lines.extend(f"    {_key_label(k):<40} {_num(v)}" for k, v in value.items())
             rows = values.get("rows")
             if isinstance(rows, (list, tuple)) and rows and all(isinstance(r, Mapping) for r in rows):
                 lines.extend(_rows_table(rows))

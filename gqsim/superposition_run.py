@@ -50,6 +50,35 @@ def build(protocol: Protocol) -> SuperpositionModel:
     return model
 
 
+def _environment_channels(protocol: Protocol, setup) -> tuple[tuple, dict, list[str]]:
+    """Branch-decoherence channels from the ``[environment]`` table (gas, thermal photons, laser
+    recoil, extras; :mod:`gqsim.environment`), added to each body's own dephasing.
+
+    Returns (per-body extra channels, summary rows, validity notes)."""
+    table = protocol.data.get("environment")
+    if table is None:
+        return ((), ()), {}, []
+    from gqsim.environment.parameters import environment_from_table, sphere_from_body_table
+    from gqsim.environment.sources import EnvironmentDephasing, environment_sources, validity_notes
+
+    env = environment_from_table(protocol.to_dict()["environment"])
+    extras, rows, notes = [], {}, []
+    for index, body in enumerate(setup.bodies):
+        entry = protocol.to_dict()["bodies"][index]
+        sphere = sphere_from_body_table({**entry, "label": body.label}, mass_kg=body.mass_kg,
+                                        radius_m=body.radius_m, key=body.key)
+        seps = body.branch_separations_m
+        i, j = np.unravel_index(np.argmax(seps), seps.shape)
+        axis = (body.offsets_m[j] - body.offsets_m[i]) / seps[i, j]
+        channel = EnvironmentDephasing(sources=environment_sources(env, sphere, axis))
+        extras.append((channel,))
+        rows[body.label] = {"at_full_span_m": float(seps[i, j]),
+                            **{f"{label}_per_s": rate for label, rate in channel.rates_by_source(seps[i, j]).items()},
+                            "total_per_s": float(channel.rate_per_s(np.array(seps[i, j])))}
+        notes.extend(validity_notes(env, sphere))
+    return tuple(extras), rows, notes
+
+
 def _unused_body_keys(protocol: Protocol) -> list[str]:
     """Notes for electromagnetic body keys given without the force that would use them."""
     include = set((protocol.data.get("interactions") or {}).get("include", ("gravity",)))
@@ -120,7 +149,8 @@ def simulate(protocol: Protocol, *, engine: str | None = None) -> Result:
     model = build(protocol)
     setup = model.setup
     chosen = _choose_engine(model, engine if engine is not None else setup.engine)
-    channels = tuple(body_channel(b) for b in setup.bodies)
+    extras, env_summary, env_notes = _environment_channels(protocol, setup)
+    channels = tuple(body_channel(b, extra=x) for b, x in zip(setup.bodies, extras))
     times = setup.times_s
     if chosen == "closed_form":
         total, ga, gb = closed_form.branch_parameters(model, channels, times)
@@ -140,6 +170,9 @@ def simulate(protocol: Protocol, *, engine: str | None = None) -> Result:
     units = {k: (LOG_BASES[setup.log_base][1] if k == "log_negativity" else _UNITS[k]) for k in series}
     summary, notes = _summarise(model, series, times, states, chosen)
     notes.extend(_unused_body_keys(protocol))
+    if env_summary:
+        summary["environment_decoherence"] = env_summary
+        notes.extend(env_notes)
     if protocol.data.get("interactions") is not None:
         budget = superposition_budget(protocol.to_dict(), source=protocol.source)
         summary["force_budget"] = budget.to_json_dict()
