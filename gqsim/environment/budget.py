@@ -161,6 +161,8 @@ class NoiseBudget:
         """Plain-text table: per body, each channel's F(Delta) [1/s] and share."""
         out = [f"noise budget{': ' + self.title if self.title else ''}"]
         bodies = list(dict.fromkeys(line.body for line in self.lines))
+        if not bodies:
+            out.append("no decoherence channels: every coherence is kept (closed system)")
         for body in bodies:
             lines = sorted((ln for ln in self.lines if ln.body == body), key=lambda ln: -ln.rate_per_s)
             sep = lines[0].separation_m if lines else float("nan")
@@ -241,21 +243,38 @@ def _environment_channels(setup, env, spheres) -> tuple:
 
 
 def simulate_with_environment(protocol: Protocol, env_table: Mapping[str, Any] | None):
-    """Run a superposition protocol with its environment channels added to every body.
+    """Run a protocol with its environment channels added to every body; returns a Result.
 
-    Uses the superposition model and engines unchanged; each body's channel is
-    ``body_channel(body, extra=(environment F,))``. Returns a :class:`gqsim.result.Result`.
+    Superposition: when the family schema already carries the ``environment`` key (the
+    fragment is wired in), the standard :func:`gqsim.pipeline.simulate` runs the protocol
+    with its table; otherwise the same model (``superposition_run.build``, so confounder
+    potentials are kept) runs with ``body_channel(body, extra=(environment F,))``.
+    Oscillators: the environment is merged into each body's ``channels`` table
+    (:func:`oscillator_channel_table`) and the standard pipeline runs it.
     """
-    from gqsim.channels import body_channel
-    from gqsim.engines import closed_form, lindblad
-    from gqsim.model import build_superposition_model
-    from gqsim.result import Provenance, Result, package_versions
-    from gqsim.superposition_run import measure_states
+    from gqsim.pipeline import simulate
+    from gqsim.protocol import schema_for
 
     if protocol.family == "oscillators":
         return _simulate_oscillators(protocol, env_table)
-    setup, env, spheres = _bodies_and_spheres(protocol, env_table)
-    model = build_superposition_model(setup)
+    if env_table is None or "environment" in schema_for(protocol.family).get("properties", {}):
+        data = protocol.to_dict()
+        if env_table is not None:
+            data["environment"] = copy.deepcopy(dict(env_table))
+        return simulate(parse_protocol(data, source=protocol.source))
+    return _simulate_superposition_here(protocol, env_table)
+
+
+def _simulate_superposition_here(protocol: Protocol, env_table: Mapping[str, Any]):
+    from gqsim.channels import body_channel
+    from gqsim.engines import closed_form, lindblad
+    from gqsim.measures import LOG_BASES
+    from gqsim.result import Provenance, Result, package_versions
+    from gqsim.superposition_run import build, measure_states
+
+    model = build(protocol)
+    setup = model.setup
+    _, env, spheres = _bodies_and_spheres(protocol, env_table)
     extras = _environment_channels(setup, env, spheres)
     channels = tuple(body_channel(b, extra=x) for b, x in zip(setup.bodies, extras))
     times = setup.times_s
@@ -269,12 +288,9 @@ def simulate_with_environment(protocol: Protocol, env_table: Mapping[str, Any] |
     series = measure_states(evo.states, model.dims, setup.measures, setup.log_base,
                             model.entangling_phase_rad(times))
     data = protocol.to_dict()
-    if env_table is not None:
-        data["environment"] = copy.deepcopy(dict(env_table))
+    data["environment"] = copy.deepcopy(dict(env_table))
     provenance = Provenance(protocol=data, source=protocol.source, engine=engine, options=dict(evo.stats),
                             versions=package_versions())
-    from gqsim.measures import LOG_BASES
-
     units = {k: {"log_negativity": LOG_BASES[setup.log_base][1], "entangling_phase": "rad"}.get(k, "1")
              for k in series}
     summary = {name: {"max": float(np.max(v)), "time_of_max_s": float(times[int(np.argmax(v))])}

@@ -166,3 +166,21 @@ def test_environment_channel_equals_the_same_rate_given_as_a_raw_dephasing_table
     plain = simulate_with_environment(proto_raw, None)
     for name in ("witness_optimised", "log_negativity", "purity"):
         np.testing.assert_allclose(with_env.series[name], plain.series[name], rtol=1e-12, atol=1e-14)
+
+
+def test_wired_schema_delegates_to_the_standard_pipeline_with_the_same_result(demo, monkeypatch):
+    # Once the family schema carries the fragment, gqsim.pipeline.simulate must apply the environment
+    # itself; its run must equal the run with the environment channels added here.
+    import gqsim.protocol as protocol_module
+    from gqsim.environment.parameters import with_environment_key
+
+    proto, table = split_environment(demo)
+    here = simulate_with_environment(proto, table)
+    original = protocol_module.schema_for
+    monkeypatch.setattr(protocol_module, "schema_for",
+                        lambda fam, version=1: with_environment_key(original(fam, version)))
+    proto_wired, table_wired = split_environment(demo)
+    wired = simulate_with_environment(proto_wired, table_wired)
+    assert wired.provenance.engine in ("closed_form", "lindblad")
+    for name in ("witness_optimised", "log_negativity", "purity"):
+        np.testing.assert_allclose(wired.series[name], here.series[name], rtol=1e-12, atol=1e-14)
