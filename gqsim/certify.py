@@ -60,6 +60,8 @@ from gqsim.statistics import (
     MonteCarloCheck,
     RepetitionPlan,
     best_measurement_time,
+    covariance_monte_carlo_check,
+    duan_monte_carlo_check,
     duan_plan,
     log_negativity_plan,
     monte_carlo_check,
@@ -336,6 +338,7 @@ class CertificationReport:
                               "rotation_rad": plan.rotation_rad.tolist()})
             elif isinstance(plan, CovariancePlan):
                 entry.update({"value": plan.value.tolist(), "bound": 0.0, "settings": list(plan.settings),
+                              "bias_one_shot": plan.bias_one_shot.tolist(),
                               "per_setting": [_finite_list(r) for r in plan.per_setting]})
             else:
                 entry.update({"value": plan.values.tolist(), "bound": plan.bound, "settings": list(plan.settings),
@@ -429,6 +432,7 @@ def certify_result(result: Result, options: CertifyOptions | None = None, *,
                                                  seed=options.seed)
     elif covariances is not None:
         cov = np.asarray(covariances, dtype=float)
+        ex = ep = 0.0
         if {"duan", "estimated_log_negativity"} & set(options.builtin):
             scale = np.ones(2) if position_scale_m is None else np.asarray(position_scale_m, dtype=float)
             # X = ell x and P = (hbar/ell) p, so added noise variances convert as below (scaled units);
@@ -442,6 +446,16 @@ def certify_result(result: Result, options: CertifyOptions | None = None, *,
             plans["estimated_log_negativity"] = log_negativity_plan(
                 cov, times, imprecision_x=ex, imprecision_p=ep, confidence=options.confidence, sigmas=options.sigmas,
                 power=options.power, overhead_s=options.overhead_s)
+        if options.trials:
+            for name, plan in plans.items():
+                if not np.any(np.isfinite(plan.lab_time_s)):
+                    continue
+                i = best_measurement_time(times, plan.total, plan.overhead_s)[0]
+                if isinstance(plan, DuanPlan):
+                    checks[name] = duan_monte_carlo_check(plan, index=i, trials=options.trials, seed=options.seed)
+                else:
+                    checks[name] = covariance_monte_carlo_check(cov, plan, index=i, imprecision_x=ex, imprecision_p=ep,
+                                                                trials=options.trials, seed=options.seed)
         for name in ("optimal_ppt", "spin_correlation"):
             if name in options.builtin:
                 skipped[name] = "applies to superposition (branch) runs"

@@ -55,6 +55,8 @@ __all__ = [
     "CovariancePlan",
     "log_negativity_plan",
     "COVARIANCE_SETTINGS",
+    "duan_monte_carlo_check",
+    "covariance_monte_carlo_check",
 ]
 
 
@@ -530,17 +532,20 @@ _PAIRS = [(i, j) for i in range(4) for j in range(i, 4)]
 def pt_symplectic_log(covariance) -> np.ndarray:
     """-ln nu~_-: the signed log-negativity [nats] of a two-mode covariance (positive = entangled).
 
-    nu~_-^2 = (D - sqrt(D^2 - 4 det sigma))/2 with D = det A + det B - 2 det C for
-    sigma = [[A, C], [C^T, B]] in the vacuum = identity convention; E_N = max(0, -ln nu~_-)
-    ([VidalWerner2002]; form of [AdessoIlluminati2007], physics-references Sec. 5.1).
-    Without the max(0, .) it is smooth across the separability boundary, which the
-    delta method below needs.
+    nu~_- is the smaller symplectic eigenvalue of the partially transposed covariance
+    (p2 -> -p2), i.e. the smaller modulus among the eigenvalues of i Omega sigma~ in the
+    vacuum = identity convention; E_N = max(0, -ln nu~_-) ([VidalWerner2002]; physics-references
+    Sec. 5.1, which also gives the equivalent closed form via det A + det B - 2 det C). The
+    eigenvalue route is used because the closed form cancels catastrophically for strongly
+    squeezed or hot states (entries >> 1 with det sigma ~ 1). Without the max(0, .) it is
+    smooth across the separability boundary, which the delta method below needs.
     """
     cov = np.asarray(covariance, dtype=float)
-    a, b, c = cov[..., :2, :2], cov[..., 2:, 2:], cov[..., :2, 2:]
-    delta = np.linalg.det(a) + np.linalg.det(b) - 2 * np.linalg.det(c)
-    nu2 = (delta - np.sqrt(np.maximum(delta ** 2 - 4 * np.linalg.det(cov), 0.0))) / 2
-    return -0.5 * np.log(nu2)
+    flip = np.array([1.0, 1.0, 1.0, -1.0])
+    pt = cov * flip[:, None] * flip[None, :]
+    omega = np.array([[0, 1, 0, 0], [-1, 0, 0, 0], [0, 0, 0, 1], [0, 0, -1, 0]], dtype=float)
+    nus = np.abs(np.linalg.eigvals(omega @ pt))
+    return -np.log(np.min(nus, axis=-1))
 
 
 def _moment_design(noise_x: float, noise_p: float):
@@ -585,6 +590,24 @@ def _unvech(theta: np.ndarray) -> np.ndarray:
     return out
 
 
+def _hessian(theta: np.ndarray) -> np.ndarray:
+    """(n, 10, 10) Hessian of -ln nu~ in the entries of Cov (central differences, step ~ eps^(1/4))."""
+    h = 1e-4 * np.maximum(np.abs(theta).max(axis=1), 1e-3)
+    m = theta.shape[1]
+    g = lambda t: pt_symplectic_log(2 * _unvech(t))  # noqa: E731
+    out = np.empty(theta.shape[:1] + (m, m))
+    for i in range(m):
+        for j in range(i, m):
+            vals = []
+            for si, sj in ((1, 1), (1, -1), (-1, 1), (-1, -1)):
+                t = theta.copy()
+                t[:, i] += si * h
+                t[:, j] += sj * h
+                vals.append(g(t))
+            out[:, i, j] = out[:, j, i] = (vals[0] - vals[1] - vals[2] + vals[3]) / (4 * h ** 2)
+    return out
+
+
 def covariance_from_moments(moments, *, imprecision_x: float = 0.0, imprecision_p: float = 0.0) -> np.ndarray:
     """Least-squares covariance sigma (vacuum = I) from the 27 sample moments of the 9 settings.
 
@@ -600,11 +623,18 @@ def covariance_from_moments(moments, *, imprecision_x: float = 0.0, imprecision_
 @dataclass(frozen=True, kw_only=True)
 class CovariancePlan:
     """Repetitions to show -ln nu~_- > 0 from an estimated covariance matrix (equal split over the
-    9 settings of :data:`COVARIANCE_SETTINGS`)."""
+    9 settings of :data:`COVARIANCE_SETTINGS`).
+
+    ``bias_one_shot``: the plug-in statistic g(theta_hat) overestimates g by about
+    bias_one_shot / (N - 1) (second-order delta method); the planned N assumes the experiment
+    subtracts that estimate (see :func:`covariance_monte_carlo_check`), otherwise small-N
+    records look more entangled than they are.
+    """
 
     times_s: np.ndarray
     value: np.ndarray
     standard_deviation_one_shot: np.ndarray
+    bias_one_shot: np.ndarray
     per_setting: np.ndarray
     total: np.ndarray
     settings: tuple[str, ...]
@@ -663,6 +693,8 @@ def log_negativity_plan(covariance, times_s=None, *, imprecision_x: float = 0.0,
     w = _wishart_unit_covariance(theta, design, offsets)
     jac = grad @ pinv  # (n, 27)
     var1 = np.einsum("ni,nij,nj->n", jac, w, jac)
+    theta_cov1 = np.einsum("ai,nij,bj->nab", pinv, w, pinv)  # (N - 1) Cov(theta_hat)
+    bias1 = 0.5 * np.einsum("nab,nab->n", _hessian(theta), theta_cov1)
     scale = max(1.0, float(np.abs(value).max()))
     usable = np.where(value > MARGIN_RTOL * scale, value, 0.0)
     with np.errstate(divide="ignore", invalid="ignore"):
@@ -674,6 +706,76 @@ def log_negativity_plan(covariance, times_s=None, *, imprecision_x: float = 0.0,
     times = np.zeros(cov.shape[0]) if times_s is None else np.asarray(times_s, dtype=float)
     if times.shape != (cov.shape[0],):
         raise ProtocolError("times_s", times.shape, f"must have one time per covariance matrix ({cov.shape[0]})")
-    return CovariancePlan(times_s=times, value=value, standard_deviation_one_shot=np.sqrt(var1), per_setting=per,
+    return CovariancePlan(times_s=times, value=value, standard_deviation_one_shot=np.sqrt(var1),
+                          bias_one_shot=bias1, per_setting=per,
                           total=total, settings=tuple(f"{a},{b}" for a, b in COVARIANCE_SETTINGS), sigmas=k,
                           overhead_s=float(overhead_s), lab_time_s=lab_time(total, times, overhead_s))
+
+
+# --------------------------------------------------------------------------------------
+# Monte-Carlo for the oscillator plans (sample-moment records)
+# --------------------------------------------------------------------------------------
+
+def _gaussian_check(est, se, expected: float, sd: float, sigmas: float, trials: int, seed: int) -> MonteCarloCheck:
+    """Summarise records of a statistic that certifies when it lies *below* ``expected``'s bound side.
+
+    ``est`` holds margin estimates (bound - value, or the value itself for -ln nu~), so the
+    entangled side is "margin > 0" and coverage is for the one-sided interval [est - k se, inf).
+    """
+    covered = lambda err: float(np.mean(est - expected <= sigmas * err))  # noqa: E731
+    return MonteCarloCheck(trials=trials, seed=seed, sigmas=float(sigmas), expected_value=float(expected),
+                           mean_estimate=float(est.mean()), analytic_sd=float(sd), sample_sd=float(est.std(ddof=1)),
+                           certified_fraction=float(np.mean(est >= sigmas * sd)),
+                           predicted_certified_fraction=float(stats.norm.cdf(expected / sd - sigmas)),
+                           coverage=covered(sd), predicted_coverage=float(stats.norm.cdf(sigmas)),
+                           certified_fraction_plugin=float(np.mean(est >= sigmas * se)), coverage_plugin=covered(se))
+
+
+def duan_monte_carlo_check(plan: DuanPlan, *, index: int, trials: int = 2000, seed: int = 0) -> MonteCarloCheck:
+    """Seeded records of the two sample variances of a :class:`DuanPlan` at time ``index``.
+
+    For Gaussian readings (N - 1) s^2 / Var is chi^2 with N - 1 degrees of freedom
+    [Cochran1934], so each record draws the two sample variances exactly from that law; the
+    statistic is the margin estimate bound - (s_u^2 + s_v^2). Same seed, same records.
+    """
+    n_u, n_v = plan.per_setting[index]
+    if not (np.isfinite(n_u) and np.isfinite(n_v)):
+        raise PhysicsError("measurement time", float(plan.times_s[index]), "the Duan witness cannot certify here")
+    rng = np.random.default_rng(seed)
+    s_u = plan.variance_u[index] * rng.chisquare(n_u - 1, size=trials) / (n_u - 1)
+    s_v = plan.variance_v[index] * rng.chisquare(n_v - 1, size=trials) / (n_v - 1)
+    est = plan.bound[index] - (s_u + s_v)
+    se = np.sqrt(2 * s_u ** 2 / (n_u - 1) + 2 * s_v ** 2 / (n_v - 1))
+    sd = float(np.hypot(sample_variance_sd(plan.variance_u[index], n_u), sample_variance_sd(plan.variance_v[index], n_v)))
+    return _gaussian_check(est, se, float(plan.margin[index]), sd, plan.sigmas, trials, seed)
+
+
+def covariance_monte_carlo_check(covariance, plan: CovariancePlan, *, index: int, imprecision_x: float = 0.0,
+                                 imprecision_p: float = 0.0, trials: int = 500, seed: int = 0) -> MonteCarloCheck:
+    """Seeded records of the 9 settings' sample covariance matrices for a :class:`CovariancePlan`.
+
+    Each setting's unbiased 2 x 2 sample covariance of N Gaussian readings is drawn from the
+    Wishart law W(S/(N-1), N-1) ([Anderson2003], via ``scipy.stats.wishart``); the covariance
+    fit and -ln nu~ are then computed per record as an experiment would, minus the record's own
+    second-order bias estimate (``bias_one_shot`` / (N - 1)). Same seed, same records.
+    """
+    cov = np.asarray(covariance, dtype=float).reshape(-1, 4, 4)[index]
+    n = plan.per_setting[index, 0]
+    if not np.isfinite(n):
+        raise PhysicsError("measurement time", float(plan.times_s[index]), "the covariance plan cannot certify here")
+    design, offsets = _moment_design(imprecision_x, imprecision_p)
+    true_moments = _vech(cov / 2) @ design.T + offsets
+    rng = np.random.default_rng(seed)
+    moments = np.empty((trials, design.shape[0]))
+    for s in range(len(COVARIANCE_SETTINGS)):
+        saa, sbb, sab = true_moments[3 * s:3 * s + 3]
+        scale = np.array([[saa, sab], [sab, sbb]]) / (n - 1)
+        draws = stats.wishart(df=n - 1, scale=scale).rvs(size=trials, random_state=rng).reshape(trials, 2, 2)
+        moments[:, 3 * s:3 * s + 3] = np.stack([draws[:, 0, 0], draws[:, 1, 1], draws[:, 0, 1]], axis=1)
+    fitted = covariance_from_moments(moments, imprecision_x=imprecision_x, imprecision_p=imprecision_p)
+    refit = log_negativity_plan(fitted, sigmas=plan.sigmas, imprecision_x=imprecision_x, imprecision_p=imprecision_p)
+    # each record subtracts its own second-order bias estimate, as the plan assumes
+    est = pt_symplectic_log(fitted) - refit.bias_one_shot / (n - 1)
+    se = refit.standard_deviation_one_shot / np.sqrt(n - 1)
+    sd = float(plan.standard_deviation_one_shot[index] / np.sqrt(n - 1))
+    return _gaussian_check(est, se, float(plan.value[index]), sd, plan.sigmas, trials, seed)

@@ -165,3 +165,31 @@ def test_log_negativity_plan_against_monte_carlo():
     # The planned N puts the value k analytic sd above 0.
     n_plan = plan.per_setting[0, 0]
     assert plan.value[0] >= 3.0 * plan.standard_deviation_one_shot[0] / np.sqrt(n_plan - 1)
+
+
+# ---- Monte-Carlo checks of the oscillator plans -----------------------------------------
+
+from gqsim.statistics import covariance_monte_carlo_check, duan_monte_carlo_check  # noqa: E402
+
+
+def test_duan_monte_carlo_check_at_planned_repetitions():
+    # Records drawn from the chi-square law of sample variances (Cochran 1934); at the planned N the
+    # certification rate is ~Phi(0) and the spread matches the analytic sd.
+    plan = duan_plan(tmsv(0.1), sigmas=3.0, imprecision_x=0.01, imprecision_p=0.01)
+    first = duan_monte_carlo_check(plan, index=0, trials=4000, seed=8)
+    again = duan_monte_carlo_check(plan, index=0, trials=4000, seed=8)
+    assert first == again  # same seed, same records
+    assert first.agrees
+    assert first.predicted_certified_fraction == pytest.approx(0.5, abs=0.05)
+
+
+def test_covariance_plan_bias_matches_monte_carlo_and_correction_restores_agreement():
+    # Second-order delta method: the raw fitted -ln nu~ is biased by ~bias_one_shot/(N - 1); with each
+    # record's own bias estimate removed, the Wishart records (Anderson 2003, scipy.stats.wishart)
+    # reproduce the analytic mean, sd and certification rate at the planned N.
+    cov, ex, ep = tmsv(0.1), 0.01, 0.01
+    plan = log_negativity_plan(cov, sigmas=3.0, imprecision_x=ex, imprecision_p=ep)
+    check = covariance_monte_carlo_check(cov, plan, index=0, imprecision_x=ex, imprecision_p=ep, trials=800, seed=2)
+    assert check.agrees
+    n = plan.per_setting[0, 0]
+    assert plan.bias_one_shot[0] / (n - 1) > 0.2 * check.analytic_sd  # the correction matters at this N
