@@ -54,9 +54,12 @@ BATCHED_PATHS = frozenset(
 #: order of the decoherence sources compared for ``dominant_noise`` (first wins a tie)
 NOISE_SOURCES = ("none", "bodies[0].dephasing", "bodies[0].spin", "bodies[1].dephasing", "bodies[1].spin")
 
-#: E_N values within this of the maximum count as the maximum and the earliest such time is
-#: reported: round-off (~1e-15) must not pick the time of max of a flat or zero curve.
-MAX_TIE_TOLERANCE = 1e-12
+#: E_N values within max(MAX_TIE_RELATIVE * max, MAX_TIE_FLOOR) of the maximum count as the
+#: maximum and the earliest such time is reported: round-off (~1e-16 per entry, ~1e-15 between
+#: routes) must not pick the time of max of a flat or zero curve, while real peaks (oscillator
+#: E_N ~ 1e-9 varies by ~1e-13 between neighbouring grid times) keep their own time.
+MAX_TIE_RELATIVE = 1e-12
+MAX_TIE_FLOOR = 1e-14
 
 #: Relative margin within which an overlap test is left to the one-by-one route, so that
 #: borderline points get exactly the per-point decision and message (common practice).
@@ -231,7 +234,7 @@ def evaluate_batch(batch: QubitBatch) -> dict[str, np.ndarray]:
     min_pt = np.empty(n)
     scratch = np.empty(times.shape)
     _qubit_kernel(rate, batch.hold, times, ra_full, ra_zero, rb_full, rb_zero,
-                  batch.log_base == "2", MAX_TIE_TOLERANCE, max_en, t_max, min_pt, scratch)
+                  batch.log_base == "2", MAX_TIE_RELATIVE, MAX_TIE_FLOOR, max_en, t_max, min_pt, scratch)
     return _scalar_figures(batch, rate, max_en, t_max, min_pt)
 
 
@@ -241,8 +244,8 @@ def _body_rates(batch: QubitBatch):
 
 
 @numba.njit(cache=True, parallel=True)
-def _qubit_kernel(rate, hold, times, ra_full, ra_zero, rb_full, rb_zero, base2, tie, max_en, t_max, min_pt,
-                  scratch):  # pragma: no cover - compiled; checked against evaluate_batch_numpy in tests
+def _qubit_kernel(rate, hold, times, ra_full, ra_zero, rb_full, rb_zero, base2, tie_rel, tie_floor, max_en,
+                  t_max, min_pt, scratch):  # pragma: no cover - compiled; checked against evaluate_batch_numpy in tests
     n, nt = times.shape
     for i in numba.prange(n):
         best = 0.0
@@ -269,7 +272,7 @@ def _qubit_kernel(rate, hold, times, ra_full, ra_zero, rb_full, rb_zero, base2, 
         if base2:
             en = en / math.log(2.0)
         en = max(0.0, en)
-        floor = en - tie
+        floor = en - max(tie_rel * en, tie_floor)
         first = 0
         if floor > 0:  # E_N(t) >= floor  <=>  norm(t) >= base**floor
             level = math.exp(floor * (math.log(2.0) if base2 else 1.0))
@@ -314,9 +317,10 @@ def _scalar_figures(batch: QubitBatch, rate, max_en, t_max, min_pt) -> dict[str,
 
 
 def first_near_max(values: np.ndarray) -> np.ndarray:
-    """Index of the first entry within MAX_TIE_TOLERANCE of the maximum, along the last axis."""
+    """Index of the first entry within the tie tolerance (see MAX_TIE_RELATIVE) of the maximum, last axis."""
     values = np.asarray(values)
-    return np.argmax(values >= values.max(axis=-1, keepdims=True) - MAX_TIE_TOLERANCE, axis=-1)
+    top = values.max(axis=-1, keepdims=True)
+    return np.argmax(values >= top - np.maximum(MAX_TIE_RELATIVE * np.abs(top), MAX_TIE_FLOOR), axis=-1)
 
 
 def reference_states(batch: QubitBatch) -> np.ndarray:
