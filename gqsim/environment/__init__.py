@@ -7,7 +7,8 @@ Stages inside this subpackage follow gqsim's data flow:
 ``rates``            the published rate formulas (pure functions, SI)
 ``thermal_photons``  exact separation dependence F(Delta) of the blackbody channels
 ``sources``          channel objects for superposed masses and terms for trapped oscillators
-``budget``           the noise budget and root-found tolerable limits (needs the simulators)
+``thresholds``       knob values at which the summed rate reaches a target (no simulation)
+``budget``           the noise budget and root-found tolerable limits (full simulations)
 """
 
 from gqsim.environment.parameters import (
@@ -30,6 +31,7 @@ from gqsim.environment.sources import (
     oscillator_terms,
     validity_notes,
 )
+from gqsim.environment.thresholds import rate_limit
 
 __all__ = [
     "GAS_SPECIES",
@@ -48,4 +50,5 @@ __all__ = [
     "environment_sources",
     "oscillator_terms",
     "validity_notes",
+    "rate_limit",
 ]
