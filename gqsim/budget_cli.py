@@ -93,7 +93,13 @@ def limit_command(protocol: Path, knob: str, certify: str | None, out_dir: Path 
 
     from gqsim.environment.budget import tolerable_limit
 
-    limit = tolerable_limit(_read(protocol), knob, certificate=_certificate(certify), source=str(protocol))
+    data = _read(protocol)
+    limit = tolerable_limit(data, knob, certificate=_certificate(certify), source=str(protocol))
+    estimate = None
+    if data.get("family") == "superposition" and "environment" in data and knob != "spin_dephasing":
+        from gqsim.environment.budget import rule_of_thumb_limit
+
+        estimate = rule_of_thumb_limit(data, knob, source=str(protocol))
     series = limit.certificate.split(" > ")[0]
     values = limit.result.series[series]
     k = int(np.argmax(values))
@@ -103,11 +109,14 @@ def limit_command(protocol: Path, knob: str, certify: str | None, out_dir: Path 
 
         write_outputs(limit.result, out_dir)
     if as_json:
-        click.echo(json.dumps({**limit.to_json_dict(), "backing_simulation": backing}))
+        click.echo(json.dumps({**limit.to_json_dict(), "backing_simulation": backing,
+                                "rule_of_thumb_value": estimate}))
         return
     click.echo(f"largest tolerable {knob}: {limit.value:.6g} {limit.unit} ({limit.status})")
     click.echo(f"current value: {limit.current:.6g} {limit.unit}; certificate: {limit.certificate}")
     click.echo(f"simulation at that value: max {series} = {backing['max']:.9g} at t = {backing['time_of_max_s']:.6g} s "
                f"({limit.evaluations} simulations, bracket {limit.bracket[0]:.4g}..{limit.bracket[1]:.4g})")
+    if estimate is not None:
+        click.echo(f"rule of thumb (a body's rate = |omega_ent|/2, no simulation): {estimate:.4g} {limit.unit}")
     if out_dir is not None:
         click.echo(f"files written to {out_dir}")

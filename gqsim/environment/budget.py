@@ -49,6 +49,7 @@ __all__ = [
     "oscillator_budget",
     "oscillator_channel_table",
     "tolerable_limit",
+    "rule_of_thumb_limit",
     "plot_budget",
 ]
 
@@ -511,6 +512,35 @@ def _series_names(protocol: Protocol) -> tuple[str, ...]:
     from gqsim.setup import build_superposition_setup
 
     return build_superposition_setup(protocol).measures
+
+
+def rule_of_thumb_limit(data: Mapping[str, Any], knob: str, *, source: str = "<memory>") -> float:
+    """Quick estimate without simulation: the knob value at which some body's total coherence
+    decay rate at its largest branch separation reaches half the entangling rate, |omega_ent|/2
+    (the dephasing threshold quoted in the superposition run summary; a rule of thumb, not a
+    certificate - compare :func:`tolerable_limit`). Superposition protocols only; the body's
+    own dephasing table and spin decay count against the target.
+    """
+    from gqsim.channels import body_channel
+    from gqsim.environment.thresholds import RATE_KNOBS, rate_limit
+    from gqsim.superposition_run import build
+
+    if knob not in RATE_KNOBS:
+        raise ProtocolError("knob", knob, f"the rule-of-thumb estimate takes one of {list(RATE_KNOBS)}")
+    protocol, table = split_environment(data, source=source)
+    if protocol.family != "superposition" or table is None:
+        raise ProtocolError("family", protocol.family, "the estimate needs a superposition protocol with [environment]")
+    model = build(protocol)
+    target = abs(model.analytic_entangling_rate_rad_s()) / 2.0
+    setup, env, spheres = _bodies_and_spheres(protocol, table)
+    best = math.inf
+    for body, sphere in zip(setup.bodies, spheres):
+        sep = float(np.max(body.branch_separations_m))
+        own = float(body_channel(body).rate_per_s(np.array(sep)))
+        if own >= target:
+            return 0.0
+        best = min(best, rate_limit(env, sphere, sep, knob, target - own, axis=_branch_axis(body)))
+    return best
 
 
 # ----------------------------------------------------------------------------- oscillators

@@ -121,7 +121,10 @@ class Gas:
                 raise ProtocolError(f"{self.key}.molecular_mass_u", None, "is required with species = 'custom'")
             _positive(f"{self.key}.molecular_mass_u", self.molecular_mass_kg)
         elif self.species in GAS_SPECIES:
-            if self.molecular_mass_kg is not None:
+            table_mass = GAS_SPECIES[self.species] * atomic_mass
+            # dataclasses.replace passes the derived mass back in: accept it when it is the table's
+            if self.molecular_mass_kg is not None and not math.isclose(self.molecular_mass_kg, table_mass,
+                                                                        rel_tol=1e-12):
                 raise ProtocolError(f"{self.key}.molecular_mass_u", self.molecular_mass_kg / atomic_mass,
                                     "only allowed with species = 'custom'")
             object.__setattr__(self, "molecular_mass_kg", GAS_SPECIES[self.species] * atomic_mass)

@@ -184,3 +184,31 @@ def test_wired_schema_delegates_to_the_standard_pipeline_with_the_same_result(de
     assert wired.provenance.engine in ("closed_form", "lindblad")
     for name in ("witness_optimised", "log_negativity", "purity"):
         np.testing.assert_allclose(wired.series[name], here.series[name], rtol=1e-12, atol=1e-14)
+
+
+def test_spin_dephasing_limit_equals_the_early_time_analytic_threshold():
+    # DERIVED here (first-order expansion, not from a paper): for CZ(theta)|++> with every branch coherence of
+    # both bodies damped as exp(-gamma t), the optimised witness (sum of the two largest correlation singular
+    # values) is W ~ T_xx + |T_yz| = exp(-2 gamma t)(1 + cos theta)/2 + exp(-gamma t) sin(theta)/2
+    #   ~ 1 - 2 gamma t + omega t / 2   (theta = omega t),
+    # so some early time certifies entanglement iff gamma < |omega|/4. The root-found 1/T2 must sit there.
+    from gqsim.protocol import load_protocol
+    from gqsim.superposition_run import build
+
+    path = HERE.parent.parent / "protocols" / "inline-qubits.toml"
+    omega = build(load_protocol(path)).analytic_entangling_rate_rad_s()
+    limit = tolerable_limit(tomllib.loads(path.read_text(encoding="utf-8")), "spin_dephasing")
+    # root xtol 2.3e-4 relative, plus second-order terms at the first grid step, O(omega dt) = 1.3e-3
+    assert limit.value == pytest.approx(abs(omega) / 4, rel=2e-3)
+
+
+def test_rule_of_thumb_estimate_is_reported_next_to_the_simulated_limit(demo):
+    # the rule of thumb puts each body's rate at |omega|/2; the early-time analysis above shows the witness
+    # needs |omega|/4 per body, so with one dominant linear source the estimate is twice the simulated limit
+    from gqsim.environment.budget import rule_of_thumb_limit
+
+    estimate = rule_of_thumb_limit(demo, "pressure")
+    limit = tolerable_limit(demo, "pressure")
+    assert estimate / limit.value == pytest.approx(2.0, rel=2e-3)  # gas is 99.99 % of the rate; root tolerances
+    out = CliRunner().invoke(cli, ["noise", "limit", str(DEMO), "pressure"])
+    assert out.exit_code == 0 and "rule of thumb" in out.output
