@@ -61,6 +61,7 @@ from gqsim.statistics import (
     RepetitionPlan,
     best_measurement_time,
     covariance_monte_carlo_check,
+    covariance_witness_plan,
     duan_monte_carlo_check,
     duan_plan,
     log_negativity_plan,
@@ -88,6 +89,8 @@ BUILTIN_WITNESSES = {
     "duan": "EPR-variance sum from position/momentum readout (oscillators only)",
     "estimated_log_negativity": "log-negativity of a covariance matrix fitted to 9 quadrature settings "
                                 "(oscillators only)",
+    "covariance_witness": "linear PPT witness on the fitted covariance, same 9 settings, unbiased "
+                          "(oscillators only)",
 }
 
 _ALLOWED = {
@@ -140,7 +143,8 @@ class CertifyOptions:
     readout: ReadoutModel = field(default_factory=ReadoutModel)
     position_imprecision_m: float = 0.0
     momentum_imprecision_kg_m_s: float = 0.0
-    builtin: tuple[str, ...] = ("optimal_ppt", "spin_correlation", "duan", "estimated_log_negativity")
+    builtin: tuple[str, ...] = ("optimal_ppt", "spin_correlation", "duan", "estimated_log_negativity",
+                                "covariance_witness")
     custom: tuple[CustomWitness, ...] = ()
     trials: int = 0
     seed: int = 0
@@ -407,7 +411,7 @@ def certify_result(result: Result, options: CertifyOptions | None = None, *,
             plans["optimal_ppt"] = plan_ppt_scan(states, dims, times, readout=options.readout, **options.plan_kwargs)
         for w in witnesses:
             plans[w.name] = plan_repetitions(setting_table(w, states, options.readout), times, **options.plan_kwargs)
-        for name in ("duan", "estimated_log_negativity"):
+        for name in ("duan", "estimated_log_negativity", "covariance_witness"):
             if name in options.builtin:
                 skipped[name] = "applies to oscillator runs"
         ppt = plans.get("optimal_ppt")
@@ -433,7 +437,7 @@ def certify_result(result: Result, options: CertifyOptions | None = None, *,
     elif covariances is not None:
         cov = np.asarray(covariances, dtype=float)
         ex = ep = 0.0
-        if {"duan", "estimated_log_negativity"} & set(options.builtin):
+        if {"duan", "estimated_log_negativity", "covariance_witness"} & set(options.builtin):
             scale = np.ones(2) if position_scale_m is None else np.asarray(position_scale_m, dtype=float)
             # X = ell x and P = (hbar/ell) p, so added noise variances convert as below (scaled units);
             # the plans take one noise level per quadrature, so the two bodies' values are averaged.
@@ -442,6 +446,10 @@ def certify_result(result: Result, options: CertifyOptions | None = None, *,
         if "duan" in options.builtin:
             plans["duan"] = duan_plan(cov, times, imprecision_x=ex, imprecision_p=ep, confidence=options.confidence,
                                       sigmas=options.sigmas, power=options.power, overhead_s=options.overhead_s)
+        if "covariance_witness" in options.builtin:
+            plans["covariance_witness"] = covariance_witness_plan(
+                cov, times, imprecision_x=ex, imprecision_p=ep, confidence=options.confidence, sigmas=options.sigmas,
+                power=options.power, overhead_s=options.overhead_s)
         if "estimated_log_negativity" in options.builtin:
             plans["estimated_log_negativity"] = log_negativity_plan(
                 cov, times, imprecision_x=ex, imprecision_p=ep, confidence=options.confidence, sigmas=options.sigmas,

@@ -57,6 +57,7 @@ __all__ = [
     "COVARIANCE_SETTINGS",
     "duan_monte_carlo_check",
     "covariance_monte_carlo_check",
+    "covariance_witness_plan",
 ]
 
 
@@ -625,6 +626,10 @@ class CovariancePlan:
     """Repetitions to show -ln nu~_- > 0 from an estimated covariance matrix (equal split over the
     9 settings of :data:`COVARIANCE_SETTINGS`).
 
+    ``statistic = "linear_witness"`` (from :func:`covariance_witness_plan`): ``value`` is
+    -(a . theta + c) for the linear witness with ``coefficients`` a (n, 10) on the entries of
+    Cov = sigma/2 and ``constant`` c (n,); it is unbiased, so ``bias_one_shot`` is zero.
+
     ``bias_one_shot``: the plug-in statistic g(theta_hat) overestimates g by about
     bias_one_shot / (N - 1) (second-order delta method); the planned N assumes the experiment
     subtracts that estimate (see :func:`covariance_monte_carlo_check`), otherwise small-N
@@ -641,6 +646,9 @@ class CovariancePlan:
     sigmas: float
     overhead_s: float
     lab_time_s: np.ndarray
+    statistic: str = "log_negativity"
+    coefficients: np.ndarray | None = None
+    constant: np.ndarray | None = None
 
     @property
     def bound(self) -> float:
@@ -712,6 +720,81 @@ def log_negativity_plan(covariance, times_s=None, *, imprecision_x: float = 0.0,
                           overhead_s=float(overhead_s), lab_time_s=lab_time(total, times, overhead_s))
 
 
+def _linear_witness(cov: np.ndarray):
+    """Coefficients a (n, 10) and constant c (n,) of w = a . vech(sigma/2) + c, and w itself.
+
+    v = eigenvector of sigma~ + i Omega with the smallest eigenvalue, u = Lambda v; then
+    w(sigma) = v^dag (Lambda sigma Lambda + i Omega) v = sum_ij Re(conj(u_i) u_j) sigma_ij + i v^dag Omega v.
+    """
+    flip = np.array([1.0, 1.0, 1.0, -1.0])
+    omega = np.array([[0, 1, 0, 0], [-1, 0, 0, 0], [0, 0, 0, 1], [0, 0, -1, 0]], dtype=float)
+    pt = cov * flip[:, None] * flip[None, :]
+    evals, evecs = np.linalg.eigh(pt + 1j * omega)
+    v = evecs[..., 0]
+    u = v * flip
+    z = np.real(np.conj(u)[..., :, None] * u[..., None, :])  # (n, 4, 4) real symmetric
+    const = np.real(1j * np.einsum("ni,ij,nj->n", np.conj(v), omega, v))
+    # w = sum_ij Z_ij sigma_ij = sum_ij Z_ij 2 Cov_ij; in vech(Cov) entries (i <= j):
+    coeff = np.stack([2 * z[:, i, j] * (1.0 if i == j else 2.0) for i, j in _PAIRS], axis=-1)
+    return coeff, const, evals[..., 0]
+
+
+def covariance_witness_plan(covariance, times_s=None, *, imprecision_x: float = 0.0, imprecision_p: float = 0.0,
+                            confidence: float | None = 0.999, sigmas: float | None = None,
+                            power: float | None = None, overhead_s: float = 0.0) -> CovariancePlan:
+    """Repetitions for the linear PPT witness of a two-mode covariance matrix (same 9 settings).
+
+    Every separable state has a partially transposed covariance sigma~ = Lambda sigma Lambda
+    (Lambda = diag(1, 1, 1, -1)) that is itself a bona fide covariance, sigma~ + i Omega >= 0
+    ([Simon2000]; vacuum = identity convention). For a fixed vector v, w(sigma) =
+    v^dag (sigma~ + i Omega) v is therefore >= 0 on separable states and linear in sigma; with v
+    the eigenvector of the smallest eigenvalue lambda_min of the simulated sigma~ + i Omega it
+    equals lambda_min < 0 exactly when nu~_- < 1 (the continuous-variable analogue of
+    :func:`gqsim.witness_design.optimal_ppt_witness`, cf. [Guhne2009] on witnesses from positive
+    maps). Being linear in the fitted covariance, its estimate is unbiased and its variance is
+    exact: a^T P W P^T a / (N - 1) (P the least-squares pseudo-inverse, W the Wishart moment
+    covariance of :func:`log_negativity_plan`). ``value`` is -lambda_min (positive = entangled).
+    """
+    cov = np.asarray(covariance, dtype=float)
+    if cov.shape[-2:] != (4, 4):
+        raise ProtocolError("covariance", cov.shape, "must be (4, 4) or (n, 4, 4), ordered (x1, p1, x2, p2)")
+    cov = cov.reshape(-1, 4, 4)
+    if not np.all(np.isfinite(cov)):
+        raise PhysicsError("covariance", "non-finite entries", "covariance matrices must be finite")
+    for key, val in (("imprecision_x", imprecision_x), ("imprecision_p", imprecision_p)):
+        if isinstance(val, bool) or not isinstance(val, (int, float)) or not (np.isfinite(val) and val >= 0):
+            raise ProtocolError(key, val, "must be a non-negative added variance (vacuum Var(x) = 1/2)")
+    k = sigma_multiplier(None if sigmas is not None else confidence, sigmas=sigmas, power=power)
+    _check_overhead(overhead_s)
+    coeff, const, lam = _linear_witness(cov)
+    var1 = _linear_var1(coeff, _vech(cov / 2), imprecision_x, imprecision_p)
+    value = -lam
+    scale = max(1.0, float(np.abs(cov).max()))
+    usable = np.where(value > MARGIN_RTOL * scale, value, 0.0)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        n_minus_1 = np.where(usable > 0, k ** 2 * var1 / usable ** 2, np.inf)
+    per_one = np.maximum(_ceil_or_inf(1.0 + n_minus_1), 2.0)
+    per = np.repeat(per_one[:, None], len(COVARIANCE_SETTINGS), axis=1)
+    total = per.sum(axis=1)
+    times = np.zeros(cov.shape[0]) if times_s is None else np.asarray(times_s, dtype=float)
+    if times.shape != (cov.shape[0],):
+        raise ProtocolError("times_s", times.shape, f"must have one time per covariance matrix ({cov.shape[0]})")
+    return CovariancePlan(times_s=times, value=value, standard_deviation_one_shot=np.sqrt(var1),
+                          bias_one_shot=np.zeros_like(value), per_setting=per, total=total,
+                          settings=tuple(f"{a},{b}" for a, b in COVARIANCE_SETTINGS), sigmas=k,
+                          overhead_s=float(overhead_s), lab_time_s=lab_time(total, times, overhead_s),
+                          statistic="linear_witness", coefficients=coeff, constant=const)
+
+
+def _linear_var1(coeff: np.ndarray, theta: np.ndarray, noise_x: float, noise_p: float) -> np.ndarray:
+    """(N - 1) Var(a . theta_hat) for coefficient rows ``coeff`` (n, 10) at covariances ``theta`` (n, 10)."""
+    design, offsets = _moment_design(noise_x, noise_p)
+    pinv = np.linalg.pinv(design)
+    w = _wishart_unit_covariance(theta, design, offsets)
+    jac = coeff @ pinv
+    return np.einsum("ni,nij,nj->n", jac, w, jac)
+
+
 # --------------------------------------------------------------------------------------
 # Monte-Carlo for the oscillator plans (sample-moment records)
 # --------------------------------------------------------------------------------------
@@ -773,9 +856,15 @@ def covariance_monte_carlo_check(covariance, plan: CovariancePlan, *, index: int
         draws = stats.wishart(df=n - 1, scale=scale).rvs(size=trials, random_state=rng).reshape(trials, 2, 2)
         moments[:, 3 * s:3 * s + 3] = np.stack([draws[:, 0, 0], draws[:, 1, 1], draws[:, 0, 1]], axis=1)
     fitted = covariance_from_moments(moments, imprecision_x=imprecision_x, imprecision_p=imprecision_p)
-    refit = log_negativity_plan(fitted, sigmas=plan.sigmas, imprecision_x=imprecision_x, imprecision_p=imprecision_p)
-    # each record subtracts its own second-order bias estimate, as the plan assumes
-    est = pt_symplectic_log(fitted) - refit.bias_one_shot / (n - 1)
-    se = refit.standard_deviation_one_shot / np.sqrt(n - 1)
+    if plan.statistic == "linear_witness":
+        a = np.broadcast_to(plan.coefficients[index], (trials, plan.coefficients.shape[1]))
+        est = -(np.einsum("tk,tk->t", a, _vech(fitted / 2)) + plan.constant[index])
+        se = np.sqrt(_linear_var1(a, _vech(fitted / 2), imprecision_x, imprecision_p) / (n - 1))
+    else:
+        refit = log_negativity_plan(fitted, sigmas=plan.sigmas, imprecision_x=imprecision_x,
+                                    imprecision_p=imprecision_p)
+        # each record subtracts its own second-order bias estimate, as the plan assumes
+        est = pt_symplectic_log(fitted) - refit.bias_one_shot / (n - 1)
+        se = refit.standard_deviation_one_shot / np.sqrt(n - 1)
     sd = float(plan.standard_deviation_one_shot[index] / np.sqrt(n - 1))
     return _gaussian_check(est, se, float(plan.value[index]), sd, plan.sigmas, trials, seed)

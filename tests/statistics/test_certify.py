@@ -105,7 +105,9 @@ def test_duan_plan_from_covariances():
     est = report.plans["estimated_log_negativity"]
     np.testing.assert_allclose(est.value, 2 * r, atol=1e-9)
     assert np.isinf(est.total[0]) and np.isfinite(est.total[-1])
-    assert {row["witness"] for row in report.rows()} == {"duan", "estimated_log_negativity"}
+    # Linear PPT witness on the fitted covariance: value 1 - e^{-2r} (TMSV, Sec. 5.1 nu~ = e^{-2r}).
+    np.testing.assert_allclose(report.plans["covariance_witness"].value, 1 - np.exp(-2 * r), atol=1e-12)
+    assert {row["witness"] for row in report.rows()} == {"duan", "estimated_log_negativity", "covariance_witness"}
     assert "optimal_ppt" in report.skipped
 
 
