@@ -91,6 +91,10 @@ def batched_support(spec) -> tuple[bool, str]:
                 return False, "unequal branch weights"
         if "mass_kg" not in body:
             return False, "a body's mass follows from radius and density"
+    from gqsim.sweeps.spec import CERTIFICATION_FIGURES
+
+    if set(CERTIFICATION_FIGURES) & set(spec.figures):
+        return False, "certification figures need a measurement plan per point"
     for axis in spec.axes:
         if axis.path not in BATCHED_PATHS:
             return False, f"axis {axis.path} is not among the batched keys"

@@ -9,6 +9,7 @@ attribute ``not_applicable`` (never silently: the status of the point is still "
 from __future__ import annotations
 
 import math
+from typing import Mapping
 
 import numpy as np
 
@@ -16,6 +17,7 @@ from gqsim.errors import GqsimError
 from gqsim.measures import partial_transpose
 from gqsim.pipeline import build, simulate
 from gqsim.protocol import Protocol, parse_protocol
+from gqsim.sweeps.spec import CERTIFICATION_FIGURES
 
 __all__ = ["evaluate_point", "NOT_APPLICABLE"]
 
@@ -36,10 +38,13 @@ def _with_log_negativity(protocol: Protocol) -> Protocol:
     return parse_protocol(data, source=protocol.source)
 
 
-def evaluate_point(protocol: Protocol) -> dict:
+def evaluate_point(protocol: Protocol, figures: tuple = (), certification: Mapping | None = None) -> dict:
     """Figures of merit of one protocol; ``dominant_noise`` as an index into NOISE_SOURCES.
 
-    Raises the GqsimError of the failing stage for an invalid point (the runner records it).
+    The certification figures are computed only when listed in ``figures`` (they plan a
+    measurement with :func:`gqsim.certify.certify_result`; ``certification`` holds its
+    ``confidence`` and ``overhead_s``). Raises the GqsimError of the failing stage for an
+    invalid point (the runner records it).
     """
     from gqsim.sweeps.batched import NOISE_SOURCES, first_near_max
 
@@ -72,7 +77,30 @@ def evaluate_point(protocol: Protocol) -> dict:
         out["dominant_noise"] = NOISE_SOURCES.index(_dominant_noise(protocol))
     elif "simon_min_eigenvalue" in result.series:
         out["min_pt_eigenvalue"] = float(np.min(np.asarray(result.series["simon_min_eigenvalue"])[times > 0]))
+    if set(CERTIFICATION_FIGURES) & set(figures):
+        out.update(_certification(protocol, result, certification or {}))
     return out
+
+
+def _certification(protocol: Protocol, result, options: Mapping) -> dict:
+    """Best time, total repetitions and lab time of the family's main witness (gqsim.certify)."""
+    from gqsim.certify import CertifyOptions, certify_result, oscillator_covariances
+
+    kwargs = {"overhead_s": float(options.get("overhead_s", 0.0)),
+              "confidence": float(options.get("confidence", 0.999))}
+    if protocol.family == "oscillators":
+        cov, scale = oscillator_covariances(protocol)
+        report = certify_result(result, CertifyOptions(builtin=("duan",), **kwargs), covariances=cov,
+                                position_scale_m=scale)
+    else:
+        report = certify_result(result, CertifyOptions(builtin=("optimal_ppt",), **kwargs))
+    row = report.rows()[0]
+    if not row["certifiable"]:
+        return {"certification_time_s": math.nan, "certification_repetitions": math.inf,
+                "certification_lab_time_s": math.inf}
+    return {"certification_time_s": float(row["best_time_s"]),
+            "certification_repetitions": float(row["total_repetitions"]),
+            "certification_lab_time_s": float(row["lab_time_s"])}
 
 
 def _dominant_noise(protocol: Protocol) -> str:
@@ -91,11 +119,12 @@ def _dominant_noise(protocol: Protocol) -> str:
     return best
 
 
-def safe_evaluate(protocol_or_error) -> tuple[dict | None, str]:
+def safe_evaluate(protocol_or_error, figures: tuple = (), certification: Mapping | None = None
+                  ) -> tuple[dict | None, str]:
     """(figures, "") or (None, one-line message) for a point that failed."""
     if isinstance(protocol_or_error, GqsimError):
         return None, str(protocol_or_error)
     try:
-        return evaluate_point(protocol_or_error), ""
+        return evaluate_point(protocol_or_error, figures, certification), ""
     except GqsimError as exc:
         return None, f"{type(exc).__name__}: {exc}"

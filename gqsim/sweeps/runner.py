@@ -68,7 +68,8 @@ def spec_from_definition(text: str) -> SweepSpec:
                      for a in d["axes"])
         if len(_SPEC_CACHE) >= 4:
             _SPEC_CACHE.pop(next(iter(_SPEC_CACHE)))
-        _SPEC_CACHE[text] = SweepSpec(base=base, axes=axes, figures=tuple(d["figures"]), source=d.get("source", ""))
+        _SPEC_CACHE[text] = SweepSpec(base=base, axes=axes, figures=tuple(d["figures"]), source=d.get("source", ""),
+                                      certification=d.get("certification", {}))
     return _SPEC_CACHE[text]
 
 
@@ -104,7 +105,7 @@ def compute_points(spec: SweepSpec, route: str, points: np.ndarray) -> tuple[dic
             protocol = point_protocol(spec.base, spec.point_values(points[j]))
         except GqsimError as exc:
             protocol = exc
-        result, message = safe_evaluate(protocol)
+        result, message = safe_evaluate(protocol, spec.figures, spec.certification)
         if result is None:
             status[j] = FAILED
             messages[j] = message[:MESSAGE_WIDTH]

@@ -46,6 +46,7 @@ __all__ = [
     "Axis",
     "SweepSpec",
     "FIGURES",
+    "CERTIFICATION_FIGURES",
     "load_sweep",
     "parse_sweep",
     "split_path",
@@ -67,7 +68,14 @@ FIGURES: dict[str, tuple[str, str]] = {
     "dephasing_threshold_per_s": ("1/s", "|rate|/2: a per-body constant dephasing rate above this "
                                          "prevents entanglement (shared physics references §1.8)"),
     "dominant_noise": ("", "which decoherence source has the largest rate at full split"),
+    "certification_time_s": ("s", "grid time at which certifying entanglement takes the least lab time "
+                                  "(optimal PPT witness for branches, Duan for oscillators; gqsim.certify); "
+                                  "NaN where the grid never certifies"),
+    "certification_repetitions": ("1", "total repetitions at that time; inf where never certifiable"),
+    "certification_lab_time_s": ("s", "repetitions x (time + overhead) at that time; inf where never certifiable"),
 }
+#: figures that need a measurement plan (one-by-one route only)
+CERTIFICATION_FIGURES = ("certification_time_s", "certification_repetitions", "certification_lab_time_s")
 DEFAULT_FIGURES = ("max_log_negativity", "time_of_max_s", "entangled", "min_pt_eigenvalue",
                    "entangling_rate_rad_s", "dephasing_threshold_per_s", "dominant_noise")
 
@@ -133,6 +141,7 @@ class SweepSpec:
     figures: tuple[str, ...] = DEFAULT_FIGURES
     execution: Execution = field(default_factory=Execution)
     threshold: Threshold | None = None
+    certification: Mapping[str, float] = field(default_factory=dict)
     title: str = ""
     source: str = "<memory>"
 
@@ -165,6 +174,7 @@ class SweepSpec:
             "axes": [{"path": a.path, "label": a.label, "spacing": a.spacing, "values": list(a.values)}
                      for a in self.axes],
             "figures": list(self.figures),
+            "certification": dict(self.certification) if set(CERTIFICATION_FIGURES) & set(self.figures) else {},
         }
 
     def fingerprint(self, route: str) -> str:
@@ -307,6 +317,7 @@ def parse_sweep(data: Mapping[str, Any], *, base_dir: str | Path = ".", base: Pr
                               relative_tolerance=float(th.get("relative_tolerance", 1e-10)))
     figures = tuple(data.get("figures", DEFAULT_FIGURES))
     return SweepSpec(base=base, axes=axes, figures=figures, execution=execution, threshold=threshold,
+                     certification=dict(data.get("certification", {})),
                      title=data.get("about", {}).get("title", ""), source=source)
 
 

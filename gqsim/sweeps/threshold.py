@@ -28,7 +28,7 @@ from gqsim.sweeps.storage import DONE
 __all__ = ["solve_threshold", "ThresholdSolution", "SOLVABLE_FIGURES"]
 
 SOLVABLE_FIGURES = ("max_log_negativity", "min_pt_eigenvalue", "entangling_rate_rad_s", "time_of_max_s",
-                    "dephasing_threshold_per_s")
+                    "dephasing_threshold_per_s", "certification_lab_time_s", "certification_repetitions")
 #: brentq cannot resolve x more finely than a few ulps (scipy requires rtol >= 4 eps)
 _MIN_RTOL = 4 * np.finfo(float).eps
 
@@ -46,7 +46,8 @@ class ThresholdSolution:
 def _figure_at(spec: SweepSpec, route: str, figure: str, fixed: dict, label: str, x: float) -> float:
     axes = tuple(Axis(path=a.path, label=a.label, spacing=a.spacing,
                       values=(x,) if a.label == label else (fixed[a.label],)) for a in spec.axes)
-    one = SweepSpec(base=spec.base, axes=axes, figures=(figure,), source=spec.source)
+    one = SweepSpec(base=spec.base, axes=axes, figures=(figure,), source=spec.source,
+                    certification=spec.certification)
     figures, status, messages = compute_points(one, route, np.array([0]))
     if status[0] != DONE:
         raise ProtocolError(f"threshold at {label} = {x:g}", fixed, f"the model failed there: {messages[0]}")
