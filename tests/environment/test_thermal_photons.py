@@ -16,6 +16,8 @@ import math
 import numpy as np
 import pytest
 import qutip
+from hypothesis import given, settings
+from hypothesis import strategies as st
 from scipy.special import zeta
 
 from gqsim.environment import rates
@@ -153,3 +155,20 @@ def test_path_integral_of_g_matches_adaptive_quadrature(kind, a, b):
     ref = quad(lambda v: float(universal_decoherence(kind, np.array([v]))[0]), a, b, epsabs=0, epsrel=1e-12,
                limit=500, points=points or None)[0]
     assert integral_of_universal_decoherence(kind, a, b) == pytest.approx(ref, rel=1e-9)
+
+
+@settings(derandomize=True, max_examples=60, deadline=None)
+@given(temperature=st.floats(0.01, 400.0), radius=st.floats(1e-8, 1e-5), eps_re=st.floats(1.1, 30.0),
+       eps_im=st.floats(0.0, 5.0), separation=st.floats(1e-9, 1.0))
+def test_exact_rate_never_exceeds_the_quadratic_or_the_saturated_form(temperature, radius, eps_re, eps_im, separation):
+    # Property (derived): the kernels obey 1 - j0(y) <= y^2/6 and 1 - j0^2 - j2^2/2 <= y^2/3 and <= 1
+    # (alternating Taylor series of j0; checked on a grid in the module's development), so for every
+    # temperature, size and permittivity F(Delta) <= min(Lambda Delta^2, Gamma_tot) up to table error.
+    eps = complex(eps_re, eps_im)
+    kappa = rates.thermal_wavenumber_per_m(temperature)
+    for kind, total_fn in (("scattering", rates.blackbody_scattering_total_per_s),
+                           ("absorption", rates.blackbody_absorption_total_per_s)):
+        ch = ThermalPhotonDephasing(kind=kind, total_rate=total_fn(radius, temperature, eps), wavenumber=kappa)
+        f = float(ch.rate_per_s(np.array(separation)))
+        bound = min(ch.localisation * separation**2, ch.saturation)
+        assert 0.0 <= f <= bound * (1 + TABLE_RTOL) + 1e-300
