@@ -51,6 +51,11 @@ BATCHED_PATHS = frozenset(
     [f"bodies[{i}].{k}" for i in ("0", "1", "*") for k in _BODY_KEYS]
     + ["arrangement.centre_distance_m", "arrangement.branch_span_m", "timing.hold_s"]
 )
+#: protocol tables and body keys the batched model covers; anything else (extra interactions,
+#: an environment, charges) sends the sweep to the one-by-one route
+_BATCHED_TABLES = frozenset({"schema_version", "family", "about", "arrangement", "bodies", "timing", "field",
+                             "time_grid", "output", "solver"})
+_BATCHED_BODY_KEYS = frozenset({"label", "mass_kg", "radius_m", "dephasing", "spin", "amplitudes"})
 #: order of the decoherence sources compared for ``dominant_noise`` (first wins a tie)
 NOISE_SOURCES = ("none", "bodies[0].dephasing", "bodies[0].spin", "bodies[1].dephasing", "bodies[1].spin")
 
@@ -72,6 +77,13 @@ def batched_support(spec) -> tuple[bool, str]:
     if base.family != "superposition":
         return False, f"family {base.family!r} has no batched route yet"
     data = base.data
+    extra = sorted(set(data) - _BATCHED_TABLES)
+    if extra:
+        return False, f"table [{extra[0]}] is not part of the batched model"
+    for i, body in enumerate(data["bodies"]):
+        unknown = sorted(set(body) - _BATCHED_BODY_KEYS)
+        if unknown:
+            return False, f"bodies[{i}].{unknown[0]} is not part of the batched model"
     arr = data.get("arrangement")
     if arr is None:
         return False, "bodies placed without [arrangement]"

@@ -113,3 +113,15 @@ def test_invalid_points_fail_with_their_message_in_both_routes(tmp_path):
     assert np.isnan(fast.max_log_negativity.values[:2]).all()
     np.testing.assert_allclose(fast.max_log_negativity.values[2], slow.max_log_negativity.values[2],
                                rtol=ROUTE_ATOL, atol=ROUTE_ATOL)
+
+
+def test_protocol_tables_outside_the_batched_model_go_one_by_one():
+    """Extra pair potentials ([interactions]: Casimir-Polder etc.) change the phases, so a
+    sweep of such a protocol must not take the gravity-only batched formulas."""
+    from gqsim.sweeps import resolve_route
+
+    spec = small_sweep([{"path": "arrangement.centre_distance_m", "values": [300e-6, 400e-6]}],
+                       base_protocol="casimir-budget-diamonds.toml")
+    ok, reason = batched.batched_support(spec)
+    assert not ok and "[interactions]" in reason
+    assert resolve_route(spec) == "one_by_one"
