@@ -27,6 +27,7 @@ import warnings
 from dataclasses import dataclass, field
 
 import numpy as np
+from scipy import sparse
 from scipy.linalg import expm
 
 from gqsim.errors import ConvergenceError, PhysicsError
@@ -98,10 +99,10 @@ def single_mode_state(initial, occupation: float, cutoff: int) -> np.ndarray:
     return rho / np.trace(rho).real
 
 
-def _embed(op: np.ndarray, which: int, n_modes: int, cutoff: int) -> np.ndarray:
-    out = np.ones((1, 1))
+def _embed_sparse(op, which: int, n_modes: int, cutoff: int):
+    out = sparse.identity(1, format="csr")
     for m in range(n_modes):
-        out = np.kron(out, op if m == which else np.eye(cutoff))
+        out = sparse.kron(out, op if m == which else sparse.identity(cutoff), format="csr")
     return out
 
 
@@ -176,33 +177,53 @@ def _mode_states(model: OscillatorModel, cutoff: int) -> list[np.ndarray]:
     return states
 
 
+def _support(rho: np.ndarray, tail: float) -> int:
+    """Smallest N such that the populations above level N - 1 sum to less than ``tail``."""
+    pops = np.clip(np.real(np.diag(rho)), 0.0, None)
+    above = np.cumsum(pops[::-1])[::-1]  # above[k] = population in levels >= k
+    idx = np.nonzero(above < tail)[0]
+    return int(idx[0]) if idx.size else len(pops)
+
+
 def estimate_cutoff(model: OscillatorModel, dynamics: OpenDynamics, tolerance: float) -> tuple[int, float]:
-    """Cutoff from the largest mean phonon number of any mode over the run; returns (cutoff, n_max)."""
-    probe = _mode_states(model, 60)
-    traj = evolve_gaussian(model, dynamics, initial=_initial_moments_of_states(model, probe))
+    """Starting cutoff for the convergence loop; returns (cutoff, largest mean phonon number).
+
+    E_N of a nearly pure state depends on amplitudes, not populations (E_N = 2 ln sum sqrt(lambda_k)
+    over Schmidt coefficients), so the discarded population must stay below tolerance^2. Levels
+    are counted from the initial state's own support (Fock/cat inputs), plus a thermal tail
+    (n/(n+1))^N for the phonons the dynamics adds (n = growth of the largest mean phonon number
+    over the run, second moments propagated exactly by the Gaussian moment equations). This is a
+    starting guess only; the cutoff comparison decides.
+    """
+    probe = _mode_states(model, 40)
+    _, cov0 = _initial_moments_of_states(model, probe)
+    traj = evolve_gaussian(model, dynamics, initial=(np.zeros(2 * model.n_modes), cov0))
     covs = traj.covariances
-    n_modes = model.n_modes
-    n_max = max(float(np.max((covs[:, 2 * i, 2 * i] + covs[:, 2 * i + 1, 2 * i + 1]) / 4 - 0.5))
-                for i in range(n_modes))
-    n_max = max(n_max, 1e-12)
-    # squeezed-vacuum tail: population ratio n/(n+1) per two levels (the slowest Gaussian tail)
-    levels = 2.0 * math.log(tolerance) / math.log(n_max / (n_max + 1.0))
-    floor = max((b.initial.fock_n + 3 for b in model.setup.bodies), default=3)
-    return max(int(math.ceil(levels)), floor, 3), n_max
+    phonons = np.stack([(covs[:, 2 * i, 2 * i] + covs[:, 2 * i + 1, 2 * i + 1]) / 4 - 0.5
+                        for i in range(model.n_modes)], axis=1)
+    n_max = float(phonons.max())
+    tail = tolerance**2
+    support = max(_support(rho, tail) for rho in probe)
+    gaussian_start = all(b.initial.kind == "gaussian" for b in model.setup.bodies)
+    added = n_max if gaussian_start else max(0.0, float((phonons - phonons[0]).max()))
+    levels = math.log(tail) / math.log(added / (added + 1.0)) if added > 0 else 0.0
+    start = support + int(math.ceil(levels)) if not gaussian_start else max(support, int(math.ceil(levels)))
+    return max(start, 3), n_max
 
 
 def _run(model: OscillatorModel, dynamics: OpenDynamics, cutoff: int) -> dict:
     n = model.n_modes
     dims = [cutoff] * n
-    a = _ladder(cutoff)
+    a = sparse.csr_matrix(_ladder(cutoff))
     x1 = (a + a.T) / math.sqrt(2)
     p1 = -1j * (a - a.T) / math.sqrt(2)
-    xs = [_embed(x1, m, n, cutoff) for m in range(n)]
-    ps = [_embed(p1, m, n, cutoff) for m in range(n)]
+    xs = [_embed_sparse(x1, m, n, cutoff) for m in range(n)]
+    ps = [_embed_sparse(p1, m, n, cutoff) for m in range(n)]
     r_ops = [op for m in range(n) for op in (xs[m], ps[m])]
     jumps = [sum(c * op for c, op in zip(row, r_ops) if c != 0) for row in dynamics.jumps]
     brownian = [(float(g), xs[m], ps[m]) for m, g in enumerate(dynamics.brownian_rate) if g > 0]
-    anti = {(j, k): r_ops[j] @ r_ops[k] + r_ops[k] @ r_ops[j] for j in range(2 * n) for k in range(j, 2 * n)}
+    anti = {(j, k): (r_ops[j] @ r_ops[k] + r_ops[k] @ r_ops[j]).tocsr()
+            for j in range(2 * n) for k in range(j, 2 * n)}
     side_a = [i for label in model.setup.side_a for i in model.body_modes(label)]
     side_b = [i for i in range(n) if i not in side_a]
     rho = _mode_states(model, cutoff)[0]
@@ -210,19 +231,37 @@ def _run(model: OscillatorModel, dynamics: OpenDynamics, cutoff: int) -> dict:
         rho = np.kron(rho, st)
     records: dict[str, list] = {"log_negativity": [], "cov": [], "purity": [], "mutual_information": [], "top": []}
 
+    def expect(op, state) -> float:
+        if state.ndim == 1:
+            return float(np.vdot(state, op @ state).real)
+        return float(op.multiply(state.T).sum().real)  # tr(rho op)
+
     def on_state(state: np.ndarray) -> None:
-        state = 0.5 * (state + state.conj().T)
-        records["log_negativity"].append(fock_log_negativity(state, dims, side_b))
-        mean = np.array([np.vdot(op.T, state).real for op in r_ops])  # tr(rho op)
+        if state.ndim == 1:
+            # pure state: Schmidt decomposition across A | B gives E_N = 2 ln sum s_k (Vidal & Werner 2002)
+            # and I(A:B) = 2 S(A); far cheaper than eigen-decompositions of rho
+            psi = state.reshape(dims).transpose(side_a + side_b)
+            da = cutoff ** len(side_a)
+            s = np.linalg.svd(psi.reshape(da, -1), compute_uv=False)
+            p = s**2 / np.sum(s**2)
+            records["log_negativity"].append(float(2 * math.log(np.sum(np.sqrt(p)))))
+            records["purity"].append(1.0)
+            p = p[p > 0]
+            records["mutual_information"].append(float(-2 * np.sum(p * np.log(p))))
+            prob = np.abs(state.reshape(dims)) ** 2
+            records["top"].append([float(np.take(prob, -1, axis=m).sum()) for m in range(n)])
+        else:
+            state = 0.5 * (state + state.conj().T)
+            records["log_negativity"].append(fock_log_negativity(state, dims, side_b))
+            records["purity"].append(float(np.vdot(state, state).real))
+            records["mutual_information"].append(_entropy(_reduce(state, dims, side_a))
+                                                 + _entropy(_reduce(state, dims, side_b)) - _entropy(state))
+            records["top"].append([float(_reduce(state, dims, [m])[-1, -1].real) for m in range(n)])
+        mean = np.array([expect(op, state) for op in r_ops])
         cov = np.empty((2 * n, 2 * n))
         for (j, k), op in anti.items():
-            cov[j, k] = cov[k, j] = np.vdot(op.T, state).real - 2 * mean[j] * mean[k]
+            cov[j, k] = cov[k, j] = expect(op, state) - 2 * mean[j] * mean[k]
         records["cov"].append(cov)
-        records["purity"].append(float(np.vdot(state, state).real))
-        s_all = _entropy(state)
-        records["mutual_information"].append(_entropy(_reduce(state, dims, side_a))
-                                             + _entropy(_reduce(state, dims, side_b)) - s_all)
-        records["top"].append([float(_reduce(state, dims, [m])[-1, -1].real) for m in range(n)])
 
     unit = model.scales.omega_unit_rad_s
     times = model.setup.times_s
@@ -233,13 +272,13 @@ def _run(model: OscillatorModel, dynamics: OpenDynamics, cutoff: int) -> dict:
         upper = times <= t1 if s_index < last_index else np.ones(times.shape, dtype=bool)
         lower = times >= t0 if s_index == 0 else times > t0
         inside = times[lower & upper]
-        ham = sum(0.5 * stage.hamiltonian[j, k] * r_ops[j] @ r_ops[k]
+        ham = sum(0.5 * stage.hamiltonian[j, k] * (r_ops[j] @ r_ops[k])
                   for j in range(2 * n) for k in range(2 * n) if stage.hamiltonian[j, k] != 0)
         for term in model.anharmonic:
             w = sum(c * xs[m] for m, c in enumerate(term.weights) if c != 0)
             w2 = w @ w
             ham = ham + term.cubic * (w2 @ w) + term.quartic * (w2 @ w2)
-        ham = 0.5 * (ham + ham.conj().T)
+        ham = (0.5 * (ham + ham.conj().T)).tocsr()
         later = inside[inside > t0]
         end = [] if later.size and later[-1] >= t1 else [t1]
         grid = np.concatenate(([t0], later, end))

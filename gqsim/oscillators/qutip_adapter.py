@@ -38,9 +38,8 @@ def _evolve_ket(h, ket, dims, taus, on_state, *, rtol, atol):
 
     def record(t, state):
         vec = state.full()[:, 0]
-        arr = np.outer(vec, vec.conj())
-        on_state(arr)
-        last["rho"] = arr
+        on_state(vec)
+        last["psi"] = vec
         return 0.0
 
     try:
@@ -49,7 +48,7 @@ def _evolve_ket(h, ket, dims, taus, on_state, *, rtol, atol):
                                "progress_bar": False})
     except Exception as exc:  # QuTiP integration failures become one gqsim error
         raise EngineError(f"fock engine: QuTiP sesolve failed ({type(exc).__name__}: {exc})") from exc
-    return last["rho"]
+    return np.outer(last["psi"], last["psi"].conj())
 
 
 def evolve_density_matrix(hamiltonian: np.ndarray, jumps: Sequence[np.ndarray],
@@ -60,13 +59,14 @@ def evolve_density_matrix(hamiltonian: np.ndarray, jumps: Sequence[np.ndarray],
 
     Parameters
     ----------
-    hamiltonian : (D, D) Hermitian H (units of hbar omega_unit)
-    jumps : Lindblad operators L_k, each (D, D)
+    hamiltonian : (D, D) Hermitian H (units of hbar omega_unit), dense or scipy.sparse
+    jumps : Lindblad operators L_k, each (D, D), dense or scipy.sparse
     brownian : (gamma_j, x_j, p_j) triples of the Caldeira-Leggett term
     rho0 : (D, D) initial density matrix
     dims : subsystem dimensions (product = D)
     taus : (n,) dimensionless times, taus[0] the time of rho0
-    on_state : callback receiving each state as a (D, D) numpy array, in time order
+    on_state : callback receiving each state in time order: a (D,) ket when the evolution is closed
+        and the state pure, otherwise a (D, D) density matrix (numpy arrays either way)
     rtol, atol : ODE tolerances handed to QuTiP
     """
     qdims = [list(dims), list(dims)]
