@@ -243,14 +243,16 @@ def evaluate_batch(batch: QubitBatch) -> dict[str, np.ndarray]:
     """
     n = batch.hold.size
     rate = entangling_rate(batch)
-    times = np.ascontiguousarray(batch.times)
+    times = batch.times
+    if times.strides[0] == 0:  # one grid shared by every point: pass it once
+        times = times[:1]
+    times = np.ascontiguousarray(times)
     ra_full, ra_zero, rb_full, rb_zero = _body_rates(batch)
     max_en = np.empty(n)
     t_max = np.empty(n)
     min_pt = np.empty(n)
-    scratch = np.empty(times.shape)
     _qubit_kernel(rate, batch.hold, times, ra_full, ra_zero, rb_full, rb_zero,
-                  batch.log_base == "2", MAX_TIE_RELATIVE, MAX_TIE_FLOOR, max_en, t_max, min_pt, scratch)
+                  batch.log_base == "2", MAX_TIE_RELATIVE, MAX_TIE_FLOOR, max_en, t_max, min_pt)
     return _scalar_figures(batch, rate, max_en, t_max, min_pt)
 
 
@@ -261,13 +263,17 @@ def _body_rates(batch: QubitBatch):
 
 @numba.njit(cache=True, parallel=True)
 def _qubit_kernel(rate, hold, times, ra_full, ra_zero, rb_full, rb_zero, base2, tie_rel, tie_floor, max_en,
-                  t_max, min_pt, scratch):  # pragma: no cover - compiled; checked against evaluate_batch_numpy in tests
-    n, nt = times.shape
+                  t_max, min_pt):  # pragma: no cover - compiled; checked against evaluate_batch_numpy in tests
+    n = rate.size
+    step = 0 if times.shape[0] == 1 else 1  # (1, n_times): the same grid for every point
+    nt = times.shape[1]
     for i in numba.prange(n):
+        row = i * step
+        scratch = np.empty(nt)
         best = 0.0
         lowest = np.inf
         for k in range(nt):
-            t = times[i, k]
+            t = times[row, k]
             held = min(max(t, 0.0), hold[i])
             after = max(t - hold[i], 0.0)
             s = math.sin(rate[i] * held / 2)
@@ -280,7 +286,7 @@ def _qubit_kernel(rate, hold, times, ra_full, ra_zero, rb_full, rb_zero, base2, 
             e2 = (1 + pq - plus) / 4
             e4 = (1 - pq - minus) / 4
             norm = (abs(1 + pq + plus) / 4 + abs(e2) + abs(1 - pq + minus) / 4 + abs(e4))
-            scratch[i, k] = norm
+            scratch[k] = norm
             best = max(best, norm)
             if t > 0:
                 lowest = min(lowest, e2, e4)
@@ -293,11 +299,11 @@ def _qubit_kernel(rate, hold, times, ra_full, ra_zero, rb_full, rb_zero, base2, 
         if floor > 0:  # E_N(t) >= floor  <=>  norm(t) >= base**floor
             level = math.exp(floor * (math.log(2.0) if base2 else 1.0))
             for k in range(nt):
-                if scratch[i, k] >= level:
+                if scratch[k] >= level:
                     first = k
                     break
         max_en[i] = en
-        t_max[i] = times[i, first]
+        t_max[i] = times[row, first]
         min_pt[i] = lowest
 
 
