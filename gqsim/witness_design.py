@@ -403,8 +403,77 @@ def optimal_ppt_witness(rho: np.ndarray, dims: tuple[int, int], frame: str = "sc
     fa, fb = u, vh.conj().T
     f = np.kron(fa, fb)
     local = f.conj().T @ w @ f
-    return Witness(name="optimal_ppt", dims=dims, terms=decompose(local, dims), bound=0.0, entangled_if="below",
-                   source="[Guhne2009] PPT witness, Schmidt frames", frame_a=fa, frame_b=fb)
+    witness = Witness(name="optimal_ppt", dims=dims, terms=decompose(local, dims), bound=0.0, entangled_if="below",
+                      source="[Guhne2009] PPT witness, Schmidt frames", frame_a=fa, frame_b=fb)
+    return _best_schmidt_phases(witness, rho)
+
+
+#: Grid of Schmidt-vector phases tried per level (the objective is smooth and periodic in each).
+PHASE_GRID_POINTS = 24
+
+
+def _best_schmidt_phases(witness: Witness, rho: np.ndarray) -> Witness:
+    """Fix the free phases of the Schmidt vectors to minimise the shots the witness needs.
+
+    a_k -> e^{i phi_k} a_k with b_k -> e^{-i phi_k} b_k leaves |e> and W unchanged but rotates the
+    S[k,l]/A[k,l] measurement bases, so the single-shot spreads sigma_s change. The optimal-split
+    total is proportional to (sum_s sigma_s)^2 (see gqsim.statistics), so sum_s sigma_s is minimised
+    by coordinate search over phi_1..phi_{d-1} (phi_0 = 0): a grid, then a bounded scalar
+    refinement around the best grid point (two sweeps for qudits, one for qubits). Without this the SVD's arbitrary phases
+    make the repetition count jump between neighbouring times. Ideal readout is assumed here.
+    """
+    from scipy.optimize import minimize_scalar
+
+    da, db = witness.dims
+    d = min(da, db)
+    if d < 2:
+        return witness
+    table = setting_table(witness, rho[None])
+    f = np.kron(witness.frame("a"), witness.frame("b"))
+    rho_local = f.conj().T @ rho @ f
+    units = np.stack([np.kron(_basis_unitary(st.basis_a, da), _basis_unitary(st.basis_b, db))
+                      for st in table.settings])
+    values = table.values
+
+    def spread(phase_sets: np.ndarray) -> np.ndarray:
+        pa = phase_sets
+        pb = np.zeros((phase_sets.shape[0], db))
+        pb[:, :d] = phase_sets[:, :d]
+        ph = (pa[:, :, None] + pb[:, None, :]).reshape(phase_sets.shape[0], da * db)
+        rr = rho_local[None] * np.exp(-1j * ph)[:, :, None] * np.exp(1j * ph)[:, None, :]
+        p = np.real(np.einsum("skx,gkl,slx->gsx", units.conj(), rr, units))
+        mean = np.einsum("gsx,sx->gs", p, values)
+        var = np.maximum(np.einsum("gsx,sx->gs", p, values ** 2) - mean ** 2, 0.0)
+        return np.sqrt(var).sum(axis=1)
+
+    phases = np.zeros(da)
+    grid = np.linspace(0.0, 2 * np.pi, PHASE_GRID_POINTS, endpoint=False)
+    step = grid[1]
+    for _ in range(1 if d == 2 else 2):  # one phase for qubits: a single sweep is exact
+        for k in range(1, d):
+            trial = np.repeat(phases[None], grid.size, axis=0)
+            trial[:, k] = grid
+            start = grid[int(np.argmin(spread(trial)))]
+
+            def one(x, k=k):
+                t = phases.copy()
+                t[k] = x
+                return float(spread(t[None])[0])
+
+            res = minimize_scalar(one, bounds=(start - step, start + step), method="bounded",
+                                  options={"xatol": 1e-5})
+            phases[k] = res.x if res.fun <= one(start) else start
+    return _with_phases(witness, phases)
+
+
+def _with_phases(witness: Witness, phases: np.ndarray) -> Witness:
+    da, db = witness.dims
+    diag_a = np.exp(1j * phases[:da])
+    diag_b = np.ones(db, dtype=complex)
+    diag_b[:min(da, db)] = diag_a[:min(da, db)]
+    return Witness(name=witness.name, dims=witness.dims, terms=witness.terms, bound=witness.bound,
+                   entangled_if=witness.entangled_if, source=witness.source,
+                   frame_a=witness.frame("a") * diag_a, frame_b=witness.frame("b") * diag_b)
 
 
 def spin_correlation_witness(sign: int = 1) -> Witness:
