@@ -16,7 +16,8 @@ import numpy as np
 from gqsim.errors import PhysicsError, ProtocolError
 from gqsim.oscillators import analytic, measures
 from gqsim.oscillators.channels import OpenDynamics, build_channels
-from gqsim.oscillators.engines_gaussian import evolve_gaussian
+from gqsim.oscillators.engines_gaussian import (CONDITION_LIMIT, condition_numbers, evolve_gaussian,
+                                                 evolve_gaussian_precise)
 from gqsim.oscillators.model import OscillatorModel, build_model
 from gqsim.oscillators.setup import setup_from_protocol
 from gqsim.protocol import Protocol, load_protocol
@@ -87,8 +88,15 @@ def simulate_model(model: OscillatorModel, *, engine: str | None = None, protoco
     dynamics = build_channels(model)
     if choice == "gaussian":
         traj = evolve_gaussian(model, dynamics)
-        series, summary = gaussian_series(model, traj.means, traj.covariances)
+        worst = float(np.max(condition_numbers(traj.covariances)))
         notes = ()
+        if worst > CONDITION_LIMIT and not np.any(dynamics.measurement):
+            traj = evolve_gaussian_precise(model, dynamics)
+            notes = (f"covariance condition number reached {worst:.2g} (free or inverted stages shear the wave "
+                     f"packets): the run was repeated in the local interaction frame with {traj.digits}-digit "
+                     "arithmetic; entanglement measures come from the interaction-frame covariance",)
+        series, summary = gaussian_series(model, traj.means, traj.covariances, traj.interaction_covariances)
+        summary["gaussian_path"] = "interaction frame, extended precision" if notes else "float64"
     else:
         from gqsim.oscillators.engines_fock import evolve_fock
 
@@ -99,7 +107,7 @@ def simulate_model(model: OscillatorModel, *, engine: str | None = None, protoco
     summary.update(_entanglement_summary(model.setup.times_s, series))
     summary["analytic"] = analytic_companions(model, series)
     units = {name: _unit(name) for name in series}
-    notes = tuple(notes) + _resolution_notes(model)
+    notes = tuple(notes) + _resolution_notes(model, series)
     prov = Provenance(protocol=protocol.data if protocol else {}, source=protocol.source if protocol else "<model>",
                       engine=choice, options={"engine": choice, **_solver_options(model)},
                       versions=package_versions())
@@ -107,8 +115,10 @@ def simulate_model(model: OscillatorModel, *, engine: str | None = None, protoco
                   family="oscillators", notes=tuple(notes))
 
 
-def _resolution_notes(model: OscillatorModel) -> tuple[str, ...]:
+def _resolution_notes(model: OscillatorModel, series: dict) -> tuple[str, ...]:
     """Warn in the result when the coupling is too weak for float64 to resolve its E_N."""
+    if float(np.max(series["log_negativity"])) > EN_FLOOR:
+        return ()
     ham = model.stages[0].hamiltonian[0::2, 0::2]
     off = np.abs(ham - np.diag(np.diag(ham)))
     lam = float(off.max()) / 2 if off.size else 0.0
@@ -141,8 +151,16 @@ def _pairs(model: OscillatorModel):
     return [(a.label, b.label) for a, b in itertools.combinations(bodies, 2)]
 
 
-def gaussian_series(model: OscillatorModel, means: np.ndarray, covs: np.ndarray) -> tuple[dict, dict]:
-    """Every reported series from means (n_t, 2n) and covariances (n_t, 2n, 2n) in scaled units."""
+def gaussian_series(model: OscillatorModel, means: np.ndarray, covs: np.ndarray,
+                    frame_covs: np.ndarray | None = None) -> tuple[dict, dict]:
+    """Every reported series from means (n_t, 2n) and covariances (n_t, 2n, 2n) in scaled units.
+
+    ``frame_covs`` are the same states in a local symplectic frame (better conditioned); the
+    entanglement measures, invariant under local symplectic maps, are taken from them, while the
+    Duan combination, spreads and phonons are lab-frame quantities.
+    """
+    lab = covs
+    covs = lab if frame_covs is None else frame_covs
     side_a, side_b = _sides(model)
     both = side_a + side_b
     series: dict[str, np.ndarray] = {}
@@ -152,7 +170,7 @@ def gaussian_series(model: OscillatorModel, means: np.ndarray, covs: np.ndarray)
     series["simon_min_eigenvalue"] = measures.simon_min_eigenvalue(reduced, b_local)
     if len(side_a) == 1 and len(side_b) == 1:
         series["simon"] = measures.simon_invariant(reduced)
-        duan = measures.duan_optimised(reduced)
+        duan = measures.duan_optimised(measures.reduce(lab, both))
         series["duan"] = duan["value"]
         series["duan_bound"] = duan["bound"]
         series["duan_scaling"] = duan["scaling"]
@@ -166,13 +184,13 @@ def gaussian_series(model: OscillatorModel, means: np.ndarray, covs: np.ndarray)
             series[f"log_negativity[{la}|{lb}]"] = measures.log_negativity(pair, list(range(len(ma), len(ma) + len(mb))))
     scales = model.scales
     for i, name in enumerate(model.mode_names):
-        var = scales.position_variance_m2(covs[:, 2 * i, 2 * i], i)
+        var = scales.position_variance_m2(lab[:, 2 * i, 2 * i], i)
         series[f"position_spread_m[{name}]"] = np.sqrt(var)
         series[f"mean_displacement_m[{name}]"] = means[:, 2 * i] * scales.length_m[i]
         # fluctuation phonons about the mean (the static pull of the pair force is a classical
         # displacement, not heating)
-        series[f"phonons[{name}]"] = (covs[:, 2 * i, 2 * i] + covs[:, 2 * i + 1, 2 * i + 1]) / 4 - 0.5
-    return series, {"final_covariance_scaled": covs[-1].tolist()}
+        series[f"phonons[{name}]"] = (lab[:, 2 * i, 2 * i] + lab[:, 2 * i + 1, 2 * i + 1]) / 4 - 0.5
+    return series, {}
 
 
 #: tolerance on the sign-type criteria (Simon, Duan) before they count as signalling entanglement:
@@ -274,6 +292,10 @@ def analytic_companions(model: OscillatorModel, series: dict) -> dict:
             if n0 == 0 and r == 0:
                 out["quench_max"] = _pair(2 * lam, float(en.max()), "2 lambda (E_N max over the run)",
                                           "simulated E_N max")
+            if n0 == 0 and r > 0 and abs(math.sin(a.initial.squeeze_angle_rad or 0.0)) < 1e-12:
+                wt = wa * float(times[-1])
+                out["squeezed_growth"] = _pair(float(analytic.squeezed_quench_envelope(lam, wt, r)), float(en.max()),
+                                               "2 lambda omega t sinh(2r) at the last time", "simulated E_N max")
             if r == 0:
                 out["thermal_threshold_occupation"] = float(analytic.thermal_threshold_occupation(lam))
                 out["thermal_quench_max"] = _pair(float(analytic.thermal_quench_max(lam, n0)), float(en.max()),
