@@ -233,21 +233,23 @@ def plan_repetitions(table: SettingTable, times_s=None, *, confidence: float | N
 
 
 def plan_ppt_scan(states, dims: tuple[int, int], times_s, *, readout: ReadoutModel | None = None,
-                  **plan_kwargs) -> RepetitionPlan:
-    """Repetitions over a time grid when the PPT witness is re-designed for each time.
+                  design=None, name: str = "optimal_ppt (per time)", **plan_kwargs) -> RepetitionPlan:
+    """Repetitions over a time grid when the witness is re-designed for each time.
 
-    At every time t the experiment would measure the optimal witness of rho(t)
-    (:func:`gqsim.witness_design.optimal_ppt_witness`); settings used at any time form the
-    union in ``settings``, with 0 repetitions at times that do not use a setting.
-    ``plan_kwargs`` go to :func:`plan_repetitions`.
+    At every time t the experiment would measure the witness designed for rho(t): by default
+    the optimal PPT witness (:func:`gqsim.witness_design.optimal_ppt_witness`); ``design``
+    (rho -> Witness) substitutes another per-time design. Settings used at any time form the
+    union in ``settings``, with 0 repetitions at times that do not use a setting (their local
+    frames may differ between times). ``plan_kwargs`` go to :func:`plan_repetitions`.
     """
+    design = design or (lambda rho: optimal_ppt_witness(rho, dims))
     states = np.asarray(states)
     if states.ndim == 2:
         states = states[None]
     times = np.asarray(times_s, dtype=float)
     if times.shape != (states.shape[0],):
         raise ProtocolError("times_s", times.shape, f"must have one time per state ({states.shape[0]})")
-    plans = [plan_repetitions(setting_table(optimal_ppt_witness(rho, dims), rho[None], readout), [t], **plan_kwargs)
+    plans = [plan_repetitions(setting_table(design(rho), rho[None], readout), [t], **plan_kwargs)
              for rho, t in zip(states, times)]
     labels: list[str] = []
     for p in plans:
@@ -260,7 +262,7 @@ def plan_ppt_scan(states, dims: tuple[int, int], times_s, *, readout: ReadoutMod
             one_shot[i, labels.index(lab)] = p.standard_deviation_one_shot[0, j]
     first = plans[0]
     cat = lambda name: np.concatenate([getattr(p, name) for p in plans])  # noqa: E731
-    return RepetitionPlan(witness="optimal_ppt (per time)", times_s=times, values=cat("values"), bound=first.bound,
+    return RepetitionPlan(witness=name, times_s=times, values=cat("values"), bound=first.bound,
                           entangled_if=first.entangled_if, margin=cat("margin"), standard_deviation_one_shot=one_shot,
                           settings=tuple(labels), per_setting=per, total=cat("total"), sigmas=first.sigmas,
                           split=first.split, overhead_s=first.overhead_s, lab_time_s=cat("lab_time_s"))

@@ -226,3 +226,38 @@ def test_corrected_readout_is_unbiased_and_never_cheaper(seed, fa0, fa1, fb, eta
     assert noisy.values[0] == pytest.approx(float(w.value(rho)), abs=ATOL)
     if np.isfinite(ideal.total[0]):
         assert noisy.total[0] >= ideal.total[0]
+
+
+# ---- spin witness in its best local frames ------------------------------------------------
+
+from gqsim.witness_design import optimised_spin_witness  # noqa: E402
+
+
+def test_optimised_spin_witness_reproduces_reference_count():
+    # physics-references Sec. 6: in the optimal frame of a pure state W = <ZZ> + <XX> = 1 + C with
+    # one noiseless correlator, so N_XX >= k^2 (1 - C^2)/C^2 = 96.2 for C = 0.292566, k = 3 -> 97;
+    # Sec. 1.6: theta = -0.593819 rad (parallel, 2.5 s) has C = 0.292566.
+    rho = cz_plus_plus(-0.593819)
+    table = setting_table(optimised_spin_witness(rho), rho)
+    assert table.expected_values[0] == pytest.approx(1 + 0.292566, abs=1e-6)
+    optimal = plan_repetitions(table, sigmas=3.0)
+    assert sorted(optimal.per_setting[0]) == [1, 97]
+    equal = plan_repetitions(table, sigmas=3.0, split="equal")
+    np.testing.assert_array_equal(equal.per_setting[0], [97, 97])
+
+
+def test_optimised_spin_witness_matches_qutip_correlation_matrix():
+    # t1 + t2 (two largest singular values of T_ij = <s_i (x) s_j>, QuTiP expect) is the value of the
+    # two-term witness in its best local frames (Ky Fan; physics-references Sec. 1.5: 1 + C for pure states).
+    import qutip
+
+    from tests.statistics.stat_states import random_density
+
+    rng = np.random.default_rng(21)
+    paulis = [qutip.sigmax(), qutip.sigmay(), qutip.sigmaz()]
+    for _ in range(5):
+        rho = random_density(rng, 4)
+        q = qutip.Qobj(rho, dims=[[2, 2], [2, 2]])
+        t = np.array([[qutip.expect(qutip.tensor(a, b), q) for b in paulis] for a in paulis])
+        s = np.linalg.svd(t, compute_uv=False)
+        assert optimised_spin_witness(rho).value(rho) == pytest.approx(s[0] + s[1], abs=ATOL)
