@@ -74,6 +74,10 @@ _OVERLAP_MARGIN = 1e-9
 def batched_support(spec) -> tuple[bool, str]:
     """Whether the batched route can run ``spec`` exactly; returns (ok, reason if not)."""
     base: Protocol = spec.base
+    if base.family == "oscillators":
+        from gqsim.sweeps.batched_gaussian import gaussian_support
+
+        return gaussian_support(spec)
     if base.family != "superposition":
         return False, f"family {base.family!r} has no batched route yet"
     data = base.data

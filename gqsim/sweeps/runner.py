@@ -92,7 +92,14 @@ def compute_points(spec: SweepSpec, route: str, points: np.ndarray) -> tuple[dic
                       else np.full(n, np.nan)) for name in spec.figures}
     status = np.full(n, DONE, dtype=np.int8)
     messages = np.full(n, "", dtype=f"<U{MESSAGE_WIDTH}")
-    if route == "batched":
+    if route == "batched" and spec.base.family == "oscillators":
+        from gqsim.sweeps.batched_gaussian import evaluate_gaussian_points
+
+        values, mask = evaluate_gaussian_points(spec, points)
+        for name in spec.figures:
+            figures[name][:] = values[name]
+        single = np.flatnonzero(mask)
+    elif route == "batched":
         data = batched.gather_batch(spec, points)
         values = batched.evaluate_batch(data)
         for name in spec.figures:
