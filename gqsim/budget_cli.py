@@ -52,7 +52,7 @@ def budget_command(protocol: Path, knobs: tuple[str, ...], certify: str | None, 
     """Rate and share of every decoherence channel of each body (superposition) or mode (oscillators) in PROTOCOL."""
     from dataclasses import replace
 
-    from gqsim.environment.budget import budget as noise_budget
+    from gqsim.environment.budget import noise_budget
     from gqsim.environment.budget import tolerable_limit
 
     data = _read(protocol)

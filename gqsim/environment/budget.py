@@ -44,9 +44,9 @@ __all__ = [
     "NoiseBudget",
     "split_environment",
     "simulate_with_environment",
-    "budget",
-    "superposition_budget",
-    "oscillator_budget",
+    "noise_budget",
+    "superposition_noise_budget",
+    "oscillator_noise_budget",
     "oscillator_channel_table",
     "tolerable_limit",
     "rule_of_thumb_limit",
@@ -302,15 +302,15 @@ def _simulate_superposition_here(protocol: Protocol, env_table: Mapping[str, Any
                   provenance=provenance, states=None, dims=model.dims, family="superposition")
 
 
-def budget(data: Mapping[str, Any], *, source: str = "<memory>") -> NoiseBudget:
-    """The noise budget of a protocol of either family (see :func:`superposition_budget`,
-    :func:`oscillator_budget`)."""
+def noise_budget(data: Mapping[str, Any], *, source: str = "<memory>") -> NoiseBudget:
+    """The noise budget of a protocol of either family (see :func:`superposition_noise_budget`,
+    :func:`oscillator_noise_budget`)."""
     if data.get("family") == "oscillators":
-        return oscillator_budget(data, source=source)
-    return superposition_budget(data, source=source)
+        return oscillator_noise_budget(data, source=source)
+    return superposition_noise_budget(data, source=source)
 
 
-def superposition_budget(data: Mapping[str, Any], *, source: str = "<memory>") -> NoiseBudget:
+def superposition_noise_budget(data: Mapping[str, Any], *, source: str = "<memory>") -> NoiseBudget:
     """Every branch-decoherence channel of a superposition protocol at its largest branch separation."""
     from gqsim.channels import channel_from_spec
 
@@ -603,7 +603,7 @@ def _simulate_oscillators(protocol: Protocol, env_table):
     return simulate(parse_protocol(data, source=protocol.source))
 
 
-def oscillator_budget(data: Mapping[str, Any], *, source: str = "<memory>") -> NoiseBudget:
+def oscillator_noise_budget(data: Mapping[str, Any], *, source: str = "<memory>") -> NoiseBudget:
     """Heating rate [phonons/s] of every source on every active mode of an oscillators protocol.
 
     Gas appears once, as damping at the gas temperature (heating gamma k_B T / (hbar omega));

@@ -13,7 +13,7 @@ from click.testing import CliRunner
 from gqsim.cli import cli
 from gqsim.environment import rates
 from gqsim.environment.budget import (Certificate, plot_budget, simulate_with_environment, split_environment,
-                                      superposition_budget, tolerable_limit)
+                                      superposition_noise_budget, tolerable_limit)
 from gqsim.environment.parameters import GAS_SPECIES
 from gqsim.errors import ProtocolError
 
@@ -27,7 +27,7 @@ def demo():
 
 
 def test_budget_lists_every_channel_with_shares_summing_to_one(demo):
-    budget = superposition_budget(demo)
+    budget = superposition_noise_budget(demo)
     for body in ("Tern", "Plover"):
         lines = [ln for ln in budget.lines if ln.body == body]
         assert {ln.source for ln in lines} == {"gas collisions", "blackbody scattering", "blackbody absorption",
@@ -47,7 +47,7 @@ def test_spin_channels_enter_the_budget_without_double_counting(demo):
     for body in data["bodies"]:
         body["spin"] = {"t1_s": 10.0, "t2_s": 2.0}
     data["solver"] = {"engine": "lindblad"}
-    lines = [ln for ln in superposition_budget(data).lines if ln.body == "Tern"]
+    lines = [ln for ln in superposition_noise_budget(data).lines if ln.body == "Tern"]
     spin = {ln.source: ln.rate_per_s for ln in lines if ln.source.startswith("spin")}
     # T1 part 1/(2 T1) plus pure dephasing 1/T2 - 1/(2 T1) add to the coherence decay 1/T2 (Nielsen & Chuang)
     assert spin["spin relaxation (T1)"] + spin["spin pure dephasing (T2)"] == pytest.approx(1 / 2.0, rel=1e-12)
@@ -110,7 +110,7 @@ def test_plot_returns_its_axes(demo):
     import matplotlib.pyplot as plt
 
     fig, ax = plt.subplots()
-    assert plot_budget(superposition_budget(demo), ax=ax) is ax
+    assert plot_budget(superposition_noise_budget(demo), ax=ax) is ax
     assert len(ax.patches) == 8
     plt.close(fig)
 
@@ -156,7 +156,7 @@ def test_environment_channel_equals_the_same_rate_given_as_a_raw_dephasing_table
     # that rate in the protocol's own [bodies.dephasing] table (exact element-wise decay, closed form).
     proto, table = split_environment(demo)
     with_env = simulate_with_environment(proto, table)
-    budget = superposition_budget(demo)
+    budget = superposition_noise_budget(demo)
     raw = copy.deepcopy(demo)
     del raw["environment"]
     for body in raw["bodies"]:

@@ -11,7 +11,7 @@ from scipy.constants import Boltzmann as k_B
 from scipy.constants import hbar
 
 from gqsim.environment import rates
-from gqsim.environment.budget import (oscillator_budget, simulate_with_environment, split_environment,
+from gqsim.environment.budget import (oscillator_noise_budget, simulate_with_environment, split_environment,
                                       tolerable_limit)
 from gqsim.environment.parameters import GAS_SPECIES
 from gqsim.errors import PhysicsError
@@ -30,7 +30,7 @@ def demo():
 
 
 def test_budget_heating_is_epstein_damping_times_thermal_energy(demo):
-    budget = oscillator_budget(demo)
+    budget = oscillator_noise_budget(demo)
     (line,) = [ln for ln in budget.lines if ln.body == "Wren.x"]
     gamma = rates.epstein_damping_per_s(1e-12, 4.0, HE, RADIUS, MASS)
     omega = 2 * math.pi * 1.0
