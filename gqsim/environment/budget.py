@@ -136,8 +136,13 @@ class Limit:
         return math.inf if self.current == 0 else self.value / self.current
 
     def to_json_dict(self) -> dict:
-        return {"knob": self.knob, "unit": self.unit, "tolerable_value": self.value, "current_value": self.current,
-                "headroom": self.headroom, "margin_at_current": self.margin_at_current,
+        """JSON-ready; non-finite numbers (no limit found, no current value) become null."""
+        def finite(x):
+            return x if math.isfinite(x) else None
+
+        return {"knob": self.knob, "unit": self.unit, "tolerable_value": finite(self.value),
+                "current_value": self.current, "headroom": finite(self.headroom),
+                "margin_at_current": finite(self.margin_at_current),
                 "margin_at_tolerable_value": self.margin_at_value, "certificate": self.certificate,
                 "bracket": list(self.bracket), "simulations": self.evaluations, "status": self.status}
 
