@@ -27,7 +27,7 @@ A *certification file* (TOML, gqsim's own keys, all optional) tunes the plan::
     momentum_imprecision_kg_m_s = 0.0       # oscillators: added momentum noise (sd) [kg m/s]
 
     [witnesses]
-    builtin = ["optimal_ppt", "spin_correlation"]
+    builtin = ["optimal_ppt", "spin_correlation", "spin_correlation_optimised"]   # see BUILTIN_WITNESSES
     [[witnesses.custom]]
     label = "three_term"
     expression = "1 - X@Z - Y@Y - Z@X"
@@ -359,6 +359,11 @@ class CertificationReport:
 
     def plot(self, ax=None):
         return plot_repetitions(self, ax=ax)
+
+    def _repr_html_(self) -> str:
+        import html
+
+        return f"<pre>{html.escape(self.as_text())}</pre>"
 
 
 def _g(value) -> str:

@@ -135,6 +135,7 @@ def test_plot_and_files(tmp_path):
     times = np.linspace(0.5, 12.0, 24)
     states, series = _dephased_scan(times)
     report = certify_result(_result(states, times, series=series), CertifyOptions(sigmas=3.0, overhead_s=2.0))
+    assert "optimal_ppt" in report._repr_html_()
     import matplotlib.pyplot as plt
 
     fig, ax = plt.subplots()
