@@ -287,6 +287,9 @@ class CertificationReport:
             else:
                 value = float(plan.values[i])
                 settings = {lab: n for lab, n in zip(plan.settings, plan.per_setting[i]) if n > 0}
+                row["single_shot_sd"] = {lab: float(sd) for lab, sd, n in
+                                         zip(plan.settings, plan.standard_deviation_one_shot[i], plan.per_setting[i])
+                                         if n > 0}
             row.update({"certifiable": True, "best_time_s": t, "value": value,
                         "settings": len(settings), "per_setting": {k: int(v) for k, v in settings.items()},
                         "total_repetitions": int(plan.total[i]), "lab_time_s": lt})

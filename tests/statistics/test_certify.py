@@ -55,6 +55,10 @@ def test_report_on_dephased_parallel_pair():
     # for this witness sits within a grid step of the negativity peak (margin = negativity).
     assert ppt["certifiable"] and ppt["best_time_s"] < report.peak_time_s
     assert ppt["value"] < 0
+    # the optimal split puts shots in proportion to each setting's single-shot sd (Neyman)
+    sd, per = ppt["single_shot_sd"], ppt["per_setting"]
+    ratios = [per[k] / sd[k] for k in per if sd[k] > 0.05]
+    assert max(ratios) / min(ratios) < 1.05  # equal up to rounding up of ~100-shot settings
     assert ppt["monte_carlo"]["agrees"]
     # Spin witness under the Sec. 1.8 dephasing: <XZ> carries one off-diagonal factor e^{-gamma t},
     # <YY> two, so W = (1 - cos theta)(e^{-gamma t} + e^{-2 gamma t})/2 (derived from Sec. 1.5/1.8);
