@@ -18,7 +18,7 @@ from gqsim.environment.parameters import GAS_SPECIES
 from gqsim.errors import ProtocolError
 
 HERE = Path(__file__).resolve().parent
-DEMO = HERE / "protocols" / "hollowmere-cryostat.toml"
+DEMO = HERE.parent.parent / "protocols" / "hollowmere-cryostat.toml"
 
 
 @pytest.fixture()
