@@ -26,6 +26,7 @@ COMMAND_MODULES: tuple[str, ...] = (
     "gqsim.certify_cli:certify_command",
     "gqsim.budget_cli:noise_group",
     "gqsim.sweep_cli:scan_group",
+    "gqsim.oscillators.cli:compare_routes_command",
 )
 
 
