@@ -28,6 +28,7 @@ from __future__ import annotations
 import math
 
 import numpy as np
+from numba import njit
 from scipy.linalg import expm
 
 from gqsim.errors import EngineError, PhysicsError
@@ -82,6 +83,45 @@ def _mean_step(drift: np.ndarray, force: np.ndarray, dt: float) -> tuple[np.ndar
     aug[:m, m] = force
     f = expm(aug * dt)
     return f[:m, :m], f[:m, m]
+
+
+@njit(cache=True)
+def _run_plan(phis_m, us, phis, phis_t, qs, plan, ends, mean0, cov0):  # pragma: no cover - compiled
+    """sigma <- Phi sigma Phi^T + Q and rbar <- Phi_m rbar + u along ``plan``; record after each ``ends``."""
+    m = cov0.shape[0]
+    means = np.empty((ends.size, m))
+    covs = np.empty((ends.size, m, m))
+    mean = mean0.copy()
+    cov = cov0.copy()
+    piece = 0
+    for k in range(ends.size):
+        while piece < ends[k]:
+            j = plan[piece]
+            mean = phis_m[j] @ mean + us[j]
+            cov = phis[j] @ cov @ phis_t[j] + qs[j]
+            cov = 0.5 * (cov + cov.T)
+            piece += 1
+        means[k] = mean
+        covs[k] = cov
+    return means, covs
+
+
+def _run_plan_riccati(ordered, cache, plan, ends, mean, cov, n):
+    means = np.empty((len(ends), 2 * n))
+    covs = np.empty((len(ends), 2 * n, 2 * n))
+    piece = 0
+    for k, end in enumerate(ends):
+        while piece < end:
+            (phi_m, u), (_, f) = cache[ordered[plan[piece]]]
+            mean = phi_m @ mean + u
+            x = f[:2 * n, :2 * n] + f[:2 * n, 2 * n:] @ cov
+            y = f[2 * n:, :2 * n] + f[2 * n:, 2 * n:] @ cov
+            cov = np.linalg.solve(x.T, y.T).T
+            cov = 0.5 * (cov + cov.T)
+            piece += 1
+        means[k] = mean
+        covs[k] = cov
+    return means, covs
 
 
 def _riccati_step(drift, diffusion, meas, dt):
@@ -150,25 +190,29 @@ def evolve_gaussian(model: OscillatorModel, dynamics: OpenDynamics,
         return cache[key]
 
     mean, cov = initial_moments(model) if initial is None else (np.array(initial[0]), np.array(initial[1]))
-    means = np.empty((times.size, 2 * n))
-    covs = np.empty((times.size, 2 * n, 2 * n))
+    # plan: every piece of every interval as an index into the cached step propagators
+    plan: list[int] = []
+    ends: list[int] = []
+    keys: dict = {}
     t = 0.0
-    for k, target in enumerate(times):
+    for target in times:
         for stage, dt in _pieces(boundaries, t, target):
-            (phi_m, u), cov_step = step(stage, dt)
-            mean = phi_m @ mean + u
-            if cov_step[0] == "lyapunov":
-                _, phi, q = cov_step
-                cov = phi @ cov @ phi.T + q
-            else:
-                f = cov_step[1]
-                x = f[:2 * n, :2 * n] + f[:2 * n, 2 * n:] @ cov
-                y = f[2 * n:, :2 * n] + f[2 * n:, 2 * n:] @ cov
-                cov = np.linalg.solve(x.T, y.T).T
-            cov = 0.5 * (cov + cov.T)
+            step(stage, dt)
+            key = (stage, float(f"{dt:.{_STEP_KEY_DIGITS}e}"))
+            plan.append(keys.setdefault(key, len(keys)))
+        ends.append(len(plan))
         t = target
-        means[k] = mean
-        covs[k] = cov
+    ordered = sorted(keys, key=keys.get)
+    if conditional:
+        means, covs = _run_plan_riccati(ordered, cache, plan, ends, mean, cov, n)
+    else:
+        phis_m = np.array([cache[k][0][0] for k in ordered])
+        us = np.array([cache[k][0][1] for k in ordered])
+        phis = np.array([cache[k][1][1] for k in ordered])
+        qs = np.array([cache[k][1][2] for k in ordered])
+        phis_t = np.ascontiguousarray(np.transpose(phis, (0, 2, 1)))
+        means, covs = _run_plan(phis_m, us, phis, phis_t, qs, np.array(plan, dtype=np.int64),
+                                np.array(ends, dtype=np.int64), mean, cov)
     if not (np.all(np.isfinite(covs)) and np.all(np.isfinite(means))):
         raise EngineError("gaussian engine: non-finite covariance (an inverted or free stage grew the state "
                           "beyond floating-point range); shorten the stage")
