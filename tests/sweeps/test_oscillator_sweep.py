@@ -75,3 +75,18 @@ def test_batched_gaussian_route_equals_one_by_one(tmp_path):
         np.testing.assert_allclose(fast[name].values, slow[name].values, rtol=1e-12, atol=1e-12, err_msg=name)
     np.testing.assert_array_equal(fast.entangled.values, slow.entangled.values)
     assert 0 < fast.entangled.values.sum()
+
+
+def test_stacked_exponential_matches_scipy():
+    """The stacked Taylor scaling-and-squaring exponential against scipy.linalg.expm (Pade)."""
+    from scipy.linalg import expm
+
+    from gqsim.sweeps.batched_gaussian import stacked_expm
+
+    rng = np.random.default_rng(7)
+    for scale in (1e-3, 0.1, 1.0):
+        stack = rng.normal(size=(20, 8, 8)) * scale
+        ref = expm(stack)
+        # rounding grows with the number of squarings (~ norm/0.25 doublings) times eps
+        tol = 1e-14 * max(1.0, float(np.abs(stack).sum(axis=-2).max()))
+        np.testing.assert_allclose(stacked_expm(stack), ref, rtol=0, atol=tol * np.abs(ref).max())
