@@ -400,30 +400,37 @@ def optimal_ppt_witness(rho: np.ndarray, dims: tuple[int, int], frame: str = "sc
         return witness_from_operator(w, dims, bound=0.0, entangled_if="below", name="optimal_ppt",
                                      source="[Guhne2009] PPT witness")
     # e_ij = sum_k u_ik s_k vh_kj: a_k = u[:, k], b_k = vh[k, :]; body B's frame is conj(b_k).
-    u, _, vh = np.linalg.svd(e.reshape(dims))
+    u, schmidt, vh = np.linalg.svd(e.reshape(dims))
     fa, fb = u, vh.conj().T
     f = np.kron(fa, fb)
     local = f.conj().T @ w @ f
     witness = Witness(name="optimal_ppt", dims=dims, terms=decompose(local, dims), bound=0.0, entangled_if="below",
                       source="[Guhne2009] PPT witness, Schmidt frames", frame_a=fa, frame_b=fb)
-    return _best_schmidt_phases(witness, rho)
+    return _best_schmidt_phases(witness, rho, schmidt)
 
 
-#: Grid of Schmidt-vector phases tried per level (the objective is smooth and periodic in each).
+#: Grid of Schmidt-vector phases tried per level (the objective is periodic in each), and how many
+#: of the grid's lowest local minima are refined (sharp V-shaped minima can rank below shallow ones).
 PHASE_GRID_POINTS = 24
+REFINED_MINIMA = 3
 
 
-def _best_schmidt_phases(witness: Witness, rho: np.ndarray) -> Witness:
-    """Fix the free phases of the Schmidt vectors to minimise the shots the witness needs.
+def _best_schmidt_phases(witness: Witness, rho: np.ndarray, schmidt: np.ndarray | None = None) -> Witness:
+    """Use the freedom left in the Schmidt frames to minimise the shots the witness needs.
 
     a_k -> e^{i phi_k} a_k with b_k -> e^{-i phi_k} b_k leaves |e> and W unchanged but rotates the
-    S[k,l]/A[k,l] measurement bases, so the single-shot spreads sigma_s change. The optimal-split
-    total is proportional to (sum_s sigma_s)^2 (see gqsim.statistics), so sum_s sigma_s is minimised
-    by coordinate search over phi_1..phi_{d-1} (phi_0 = 0): a grid, then a bounded scalar
-    refinement around the best grid point (two sweeps for qudits, one for qubits). Without this the SVD's arbitrary phases
-    make the repetition count jump between neighbouring times. Ideal readout is assumed here.
+    S[k,l]/A[k,l] measurement bases, so the single-shot spreads sigma_s change; when two Schmidt
+    coefficients are equal (always so for the PPT witness of a pure two-qubit state) any unitary R
+    on that pair, applied to both frames, leaves W unchanged as well. The optimal-split total is
+    proportional to (sum_s sigma_s)^2 (see gqsim.statistics), so sum_s sigma_s is minimised: over
+    R in SU(2) for a degenerate pair (closed form for two qubits, :func:`_qubit_swap_frame`;
+    Nelder-Mead from three fixed starts for a pair inside a qudit), then by coordinate search over
+    phi_1..phi_{d-1} (phi_0 = 0; a grid, then a bounded scalar refinement around the three lowest
+    local minima of the grid; two sweeps for qudits, one for qubits). Without this the SVD's
+    arbitrary choices make the repetition count jump between neighbouring times and depend on
+    local rotations of the state. Ideal readout is assumed here.
     """
-    from scipy.optimize import minimize_scalar
+    from scipy.optimize import minimize, minimize_scalar
 
     da, db = witness.dims
     d = min(da, db)
@@ -436,45 +443,113 @@ def _best_schmidt_phases(witness: Witness, rho: np.ndarray) -> Witness:
                       for st in table.settings])
     values = table.values
 
-    def spread(phase_sets: np.ndarray) -> np.ndarray:
-        pa = phase_sets
-        pb = np.zeros((phase_sets.shape[0], db))
-        pb[:, :d] = phase_sets[:, :d]
-        ph = (pa[:, :, None] + pb[:, None, :]).reshape(phase_sets.shape[0], da * db)
-        rr = rho_local[None] * np.exp(-1j * ph)[:, :, None] * np.exp(1j * ph)[:, None, :]
+    def spread(mult: np.ndarray) -> np.ndarray:
+        """sum_s sigma_s for a stack (G, d, d) of frame multipliers acting on the Schmidt columns."""
+        ma = np.tile(np.eye(da, dtype=complex), (mult.shape[0], 1, 1))
+        mb = np.tile(np.eye(db, dtype=complex), (mult.shape[0], 1, 1))
+        ma[:, :d, :d] = mult
+        mb[:, :d, :d] = mult
+        k = np.einsum("gij,gkl->gikjl", ma, mb).reshape(mult.shape[0], da * db, da * db)
+        rr = np.einsum("gxa,xy,gyb->gab", k.conj(), rho_local, k)
         p = np.real(np.einsum("skx,gkl,slx->gsx", units.conj(), rr, units))
         mean = np.einsum("gsx,sx->gs", p, values)
         var = np.maximum(np.einsum("gsx,sx->gs", p, values ** 2) - mean ** 2, 0.0)
         return np.sqrt(var).sum(axis=1)
 
-    phases = np.zeros(da)
+    current = np.eye(d, dtype=complex)
+    if schmidt is not None:
+        for k in range(d - 1):
+            if abs(schmidt[k] - schmidt[k + 1]) <= DEGENERATE_SCHMIDT_ATOL:
+                if (da, db) == (2, 2):
+                    current = _qubit_swap_frame(rho_local)
+                else:
+                    current = _best_pair_rotation(spread, current, k, minimize)
+                break
+    phases = np.zeros(d)
     grid = np.linspace(0.0, 2 * np.pi, PHASE_GRID_POINTS, endpoint=False)
     step = grid[1]
+
+    def with_phases(ph: np.ndarray) -> np.ndarray:
+        return current[None] * np.exp(1j * ph)[:, None, :]
+
     for _ in range(1 if d == 2 else 2):  # one phase for qubits: a single sweep is exact
         for k in range(1, d):
             trial = np.repeat(phases[None], grid.size, axis=0)
             trial[:, k] = grid
-            start = grid[int(np.argmin(spread(trial)))]
+            costs = spread(with_phases(trial))
 
             def one(x, k=k):
                 t = phases.copy()
                 t[k] = x
-                return float(spread(t[None])[0])
+                return float(spread(with_phases(t[None]))[0])
 
-            res = minimize_scalar(one, bounds=(start - step, start + step), method="bounded",
-                                  options={"xatol": 1e-5})
-            phases[k] = res.x if res.fun <= one(start) else start
-    return _with_phases(witness, phases)
+            # refine every local minimum of the (periodic) grid: sqrt(variance) has sharp V-shaped
+            # minima that a coarse grid can rank below a shallow one
+            local = np.flatnonzero((costs <= np.roll(costs, 1)) & (costs <= np.roll(costs, -1)))
+            local = local[np.argsort(costs[local])][:REFINED_MINIMA]
+            best_x, best_cost = grid[int(np.argmin(costs))], float(costs.min())
+            for j in local:
+                res = minimize_scalar(one, bounds=(grid[j] - step, grid[j] + step), method="bounded",
+                                      options={"xatol": 1e-6})
+                if res.fun < best_cost:
+                    best_x, best_cost = float(res.x), float(res.fun)
+            phases[k] = best_x
+    return _with_multiplier(witness, with_phases(phases[None])[0])
 
 
-def _with_phases(witness: Witness, phases: np.ndarray) -> Witness:
+#: Schmidt coefficients closer than this are treated as equal (round-off of an SVD of O(1) entries).
+DEGENERATE_SCHMIDT_ATOL = 1e-9
+_PAIR_STARTS = np.random.default_rng(20240601).normal(size=(2, 3))  # fixed, so the design is deterministic
+
+
+def _qubit_swap_frame(rho_local: np.ndarray) -> np.ndarray:
+    """Best common rotation R for the swap-like witness (equal Schmidt coefficients, two qubits).
+
+    There W = (1/4)(I + XX + YY + ZZ) in the frames, each setting k has single-shot variance
+    (1 - c_k^2)/16 with c = diag(O^T T O), T the correlation matrix in the frames and O the
+    rotation of R. diag(O^T T O) = diag(O^T S O), S = (T + T^T)/2, ranges over the convex hull of
+    the permutations of S's eigenvalues (Schur-Horn theorem); sum_k sqrt(1 - c_k^2) is concave,
+    so its minimum sits at a vertex: O = eigenvectors of S (derived here).
+    """
+    paulis = [local_operator(n, 2) for n in ("X", "Y", "Z")]
+    t = np.array([[np.real(np.trace(rho_local @ np.kron(a, b))) for b in paulis] for a in paulis])
+    _, o = np.linalg.eigh(0.5 * (t + t.T))
+    if np.linalg.det(o) < 0:
+        o[:, 2] = -o[:, 2]  # a proper rotation; the sign of an axis does not change c_k
+    return _su2_from_axes(o[:, 0], o[:, 1])
+
+
+def _best_pair_rotation(spread, current: np.ndarray, k: int, minimize) -> np.ndarray:
+    """Best SU(2) rotation of Schmidt columns (k, k+1), applied on top of ``current``."""
+    paulis = np.stack([local_operator(n, 2) for n in ("X", "Y", "Z")])
+    d = current.shape[0]
+
+    def mult(x: np.ndarray) -> np.ndarray:
+        theta = np.linalg.norm(x)
+        block = np.eye(2, dtype=complex) if theta == 0 else (
+            np.cos(theta) * np.eye(2) + 1j * np.sin(theta) * np.einsum("i,ijk->jk", x / theta, paulis))
+        m = np.eye(d, dtype=complex)
+        m[k:k + 2, k:k + 2] = block
+        return current @ m
+
+    cost = lambda x: float(spread(mult(x)[None])[0])  # noqa: E731
+    best_x, best = np.zeros(3), cost(np.zeros(3))
+    for start in np.vstack([np.zeros(3), _PAIR_STARTS]):
+        res = minimize(cost, start, method="Nelder-Mead", options={"xatol": 1e-6, "fatol": 1e-10, "maxiter": 600})
+        if res.fun < best - 1e-12:
+            best_x, best = res.x, float(res.fun)
+    return mult(best_x)
+
+
+def _with_multiplier(witness: Witness, mult: np.ndarray) -> Witness:
     da, db = witness.dims
-    diag_a = np.exp(1j * phases[:da])
-    diag_b = np.ones(db, dtype=complex)
-    diag_b[:min(da, db)] = diag_a[:min(da, db)]
+    d = mult.shape[0]
+    ma, mb = np.eye(da, dtype=complex), np.eye(db, dtype=complex)
+    ma[:d, :d] = mult
+    mb[:d, :d] = mult
     return Witness(name=witness.name, dims=witness.dims, terms=witness.terms, bound=witness.bound,
                    entangled_if=witness.entangled_if, source=witness.source,
-                   frame_a=witness.frame("a") * diag_a, frame_b=witness.frame("b") * diag_b)
+                   frame_a=witness.frame("a") @ ma, frame_b=witness.frame("b") @ mb)
 
 
 def spin_correlation_witness(sign: int = 1) -> Witness:

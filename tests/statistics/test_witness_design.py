@@ -297,3 +297,24 @@ def test_wrong_user_bound_is_refused():
     w = parse_witness("X@Z + Y@Y", (2, 2), bound=0.8, entangled_if="above")
     with pytest.raises(ProtocolError, match="product .separable. state gives 1"):
         check_separable_bound(w, key="witnesses.custom[w].separable_bound")
+
+
+@settings(derandomize=True, max_examples=25, deadline=None)
+@given(seed=st.integers(0, 2**32 - 1), dims=st.sampled_from([(2, 2), (2, 3), (3, 3)]), rank=st.integers(1, 3))
+def test_witness_design_is_covariant_under_local_unitaries(seed, dims, rank):
+    # (U_A (x) U_B) rho (U_A (x) U_B)^dag has the same partial-transpose spectrum (U_B^T is unitary;
+    # Peres 1996), and the Schmidt frames rotate along, so the witness value and the repetition
+    # count must not change (up to rounding each setting's count up: at most one per setting).
+    from scipy.stats import unitary_group
+
+    from gqsim.statistics import plan_repetitions
+
+    rng = np.random.default_rng(seed)
+    rho = random_density(rng, dims[0] * dims[1], rank)
+    u = np.kron(unitary_group.rvs(dims[0], random_state=rng), unitary_group.rvs(dims[1], random_state=rng))
+    moved = u @ rho @ u.conj().T
+    a = plan_repetitions(setting_table(optimal_ppt_witness(rho, dims), rho), sigmas=3.0)
+    b = plan_repetitions(setting_table(optimal_ppt_witness(moved, dims), moved), sigmas=3.0)
+    assert a.values[0] == pytest.approx(b.values[0], abs=ATOL)
+    if np.isfinite(a.total[0]):
+        assert abs(a.total[0] - b.total[0]) <= max(len(a.settings), len(b.settings))
