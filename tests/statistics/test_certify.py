@@ -197,3 +197,24 @@ def test_repetitions_vary_smoothly_with_time():
     plan = certify_result(_result(states, times), CertifyOptions(sigmas=3.0, builtin=("optimal_ppt",))).plans["optimal_ppt"]
     jumps = np.abs(np.diff(plan.total)) / plan.total[:-1]
     assert jumps.max() < 0.10
+
+
+def test_reported_frames_and_expression_rebuild_the_witness():
+    # An experimenter should be able to rebuild the measured operator from the JSON alone:
+    # expression (gqsim syntax) in the reported local frames gives the reported value Tr(W rho).
+    from gqsim.witness_design import Witness, parse_witness
+
+    times = np.linspace(0.5, 12.0, 24)
+    states, series = _dephased_scan(times)
+    report = certify_result(_result(states, times, series=series), CertifyOptions(sigmas=3.0, overhead_s=2.0))
+    data = json.loads(json.dumps(report.to_json_dict()))
+    for row in data["rows"]:
+        if "frames_at_best_time" not in row:
+            continue
+        fr = row["frames_at_best_time"]
+        frame = {k: np.array(fr[k]["real"]) + 1j * np.array(fr[k]["imag"]) for k in ("frame_a", "frame_b")}
+        plain = parse_witness(fr["expression"], (2, 2), bound=0.0)
+        w = Witness(name="rebuilt", dims=(2, 2), terms=plain.terms, bound=0.0, **frame)
+        i = int(np.argmin(np.abs(times - row["best_time_s"])))
+        # the expression prints 6 significant digits: ~5e-7 per O(0.5) coefficient, a few coefficients
+        assert w.value(states[i]) == pytest.approx(row["value"], abs=5e-6)
