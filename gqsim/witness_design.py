@@ -13,6 +13,12 @@ This module turns a density matrix of two bodies with ``dims = (d_a, d_b)`` bran
   each setting, the single-shot estimator whose mean over shots is the witness
   contribution of that setting.
 
+A witness may carry local *frames* (one unitary per body): its observables are then
+rotated, i.e. the experiment applies F^dag to each body before reading out the branch.
+The optimal PPT witness is written in the Schmidt frames of its defining vector, which
+needs at most d(d-1)+1 settings, and the freedom left in those frames is spent on
+minimising the repetitions.
+
 Witness expression syntax (gqsim's own)
 ---------------------------------------
 A sum of terms separated by ``+`` or ``-``. A term is a real number, or an optional
