@@ -134,6 +134,62 @@ def _riccati_step(drift, diffusion, meas, dt):
     return expm(block * dt)
 
 
+def _round_steps(dt: np.ndarray) -> np.ndarray:
+    """Round step lengths to 40 mantissa bits (~12 digits) so equal steps share one propagator."""
+    mant, expo = np.frexp(dt)
+    return np.ldexp(np.round(mant * 2.0**40) / 2.0**40, expo)
+
+
+def _make_plan(times: np.ndarray, boundaries: np.ndarray, step):
+    """Indices of cached step propagators for every piece, and the piece count after each time.
+
+    Intervals inside one stage are one piece (vectorised); intervals that cross stage boundaries
+    are split by :func:`_pieces`. A uniform grid (linspace, equal up to rounding) uses one step.
+    """
+    starts = np.concatenate(([0.0], times[:-1]))
+    durations = times - starts
+    interior = durations[1:]
+    if interior.size > 1 and np.ptp(interior) <= 1e-12 * interior.mean():
+        durations = durations.copy()
+        durations[1:] = interior.mean()
+    tiny = 1e-14 * boundaries[-1]
+    last = len(boundaries) - 2
+    s_start = np.clip(np.searchsorted(boundaries, starts + tiny, side="right") - 1, 0, last)
+    s_stop = np.clip(np.searchsorted(boundaries, times - tiny, side="right") - 1, 0, last)
+    rounded = _round_steps(np.where(durations > 0, durations, 1.0))
+    active = durations > tiny
+    if np.all(s_start[active] == s_stop[active]):
+        # no interval crosses a stage boundary: vectorised plan
+        pairs = np.stack([s_start[active].astype(float), rounded[active]], axis=1)
+        unique, inverse = np.unique(pairs, axis=0, return_inverse=True)
+        keys = {}
+        for stage, dt in unique:
+            keys[(int(stage), float(dt))] = len(keys)
+            step(int(stage), float(dt))
+        return list(np.ravel(inverse)), list(np.cumsum(active)), keys
+    keys: dict = {}
+    plan: list[int] = []
+    ends: list[int] = []
+    for k in range(times.size):
+        if durations[k] <= tiny:
+            pass
+        elif s_start[k] == s_stop[k]:
+            key = (int(s_start[k]), float(rounded[k]))
+            if key not in keys:
+                keys[key] = len(keys)
+                step(*key)
+            plan.append(keys[key])
+        else:
+            for stage, dt in _pieces(boundaries, float(starts[k]), float(times[k])):
+                key = (stage, float(_round_steps(np.array([dt]))[0]))
+                if key not in keys:
+                    keys[key] = len(keys)
+                    step(*key)
+                plan.append(keys[key])
+        ends.append(len(plan))
+    return plan, ends, keys
+
+
 def _pieces(boundaries: np.ndarray, start: float, stop: float):
     """Split [start, stop] at stage boundaries into (stage index, length) pieces."""
     out = []
@@ -178,30 +234,30 @@ def evolve_gaussian(model: OscillatorModel, dynamics: OpenDynamics,
     cache: dict = {}
 
     def step(stage: int, dt: float):
-        key = (stage, float(f"{dt:.{_STEP_KEY_DIGITS}e}"))
+        key = (stage, dt)
         if key not in cache:
             tau = key[1] * unit
             a = drifts[stage]
             if conditional:
                 cov_step = ("riccati", _riccati_step(a, dynamics.diffusion, dynamics.measurement, tau))
+                cache[key] = (_mean_step(a, forces[stage], tau), cov_step)
             else:
-                cov_step = ("lyapunov", *van_loan(a, dynamics.diffusion, tau))
-            cache[key] = (_mean_step(a, forces[stage], tau), cov_step)
+                # one block exponential for both moments: the affine drift [[A, b], [0, 0]] carries
+                # the mean's drive, and the top-left block of its Van Loan integral is Q
+                m = a.shape[0]
+                aug = np.zeros((m + 1, m + 1))
+                aug[:m, :m] = a
+                aug[:m, m] = forces[stage]
+                diff = np.zeros((m + 1, m + 1))
+                diff[:m, :m] = dynamics.diffusion
+                phi_aug, q_aug = van_loan(aug, diff, tau)
+                phi = phi_aug[:m, :m]
+                cache[key] = ((phi, phi_aug[:m, m]), ("lyapunov", phi, q_aug[:m, :m]))
         return cache[key]
 
     mean, cov = initial_moments(model) if initial is None else (np.array(initial[0]), np.array(initial[1]))
     # plan: every piece of every interval as an index into the cached step propagators
-    plan: list[int] = []
-    ends: list[int] = []
-    keys: dict = {}
-    t = 0.0
-    for target in times:
-        for stage, dt in _pieces(boundaries, t, target):
-            step(stage, dt)
-            key = (stage, float(f"{dt:.{_STEP_KEY_DIGITS}e}"))
-            plan.append(keys.setdefault(key, len(keys)))
-        ends.append(len(plan))
-        t = target
+    plan, ends, keys = _make_plan(times, boundaries, step)
     ordered = sorted(keys, key=keys.get)
     if conditional:
         means, covs = _run_plan_riccati(ordered, cache, plan, ends, mean, cov, n)
