@@ -27,18 +27,18 @@ __all__ = ["build", "simulate", "simulate_model", "UNITS"]
 
 #: units of every series this family reports (prefix match for per-mode series).
 UNITS = {
-    "log_negativity": "nats (natural log)",
-    "simon": "1 (Simon's invariant, V = sigma/2; < 0 means entangled)",
-    "simon_min_eigenvalue": "1 (vacuum units; < 0 means the partial transpose is unphysical)",
-    "duan": "1 (Var(u)+Var(v), vacuum variance 1/2; entangled when below duan_bound)",
-    "duan_bound": "1 (a^2 + 1/a^2)",
-    "duan_scaling": "1 (a)",
+    "log_negativity": "nats (ln)",
+    "simon": "1",  # Simon's invariant with V = sigma/2; < 0 means entangled
+    "simon_min_eigenvalue": "1",  # vacuum units; < 0 means the partial transpose is unphysical
+    "duan": "1",  # Var(u) + Var(v) with vacuum variance 1/2; entangled when below duan_bound
+    "duan_bound": "1",
+    "duan_scaling": "1",
     "duan_rotation_rad": "rad",
     "purity": "1",
-    "mutual_information": "nats (natural log)",
+    "mutual_information": "nats (ln)",
     "position_spread_m": "m",
     "mean_displacement_m": "m",
-    "phonons": "1 (fluctuation quanta about the mean, preparation-trap ladder)",
+    "phonons": "1",  # fluctuation quanta about the mean, preparation-trap ladder
 }
 
 #: E_N below this is reported as "not entangled" in windows. Measured resolution of the Gaussian
