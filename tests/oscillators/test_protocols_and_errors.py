@@ -154,3 +154,14 @@ def test_cli_run_json_on_a_bundled_protocol():
     doc = json.loads(out.output)
     assert {"times_s", "series", "summary"} <= set(doc)
     assert "log_negativity" in doc["series"]
+
+
+def test_plot_oscillators_returns_two_axes():
+    import matplotlib.pyplot as plt
+
+    from gqsim.oscillators.plots import plot_oscillators
+
+    result = simulate(protocol(pair(lam=1e-3, points=11)))
+    top, bottom = plot_oscillators(result)
+    assert top.get_ylabel().startswith("log-negativity") and bottom.get_ylabel().startswith("position spread")
+    plt.close("all")
