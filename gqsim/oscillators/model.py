@@ -42,11 +42,12 @@ from gqsim.potentials import NewtonianGravity, PairPotential
 
 __all__ = [
     "Scales", "StageModel", "AnharmonicTerm", "OscillatorModel", "PairPotentialFactory",
-    "gravity_between", "POTENTIAL_FACTORIES", "pair_hessian", "stiffness_matrix",
+    "gravity_between", "POTENTIAL_FACTORIES", "interactions_between", "pair_hessian", "stiffness_matrix",
     "build_model", "symplectic_form", "radial_derivative",
 ]
 
-PairPotentialFactory = Callable[[Body, Body], PairPotential]
+#: (body_a, body_b) -> one pair potential, or a sequence of them
+PairPotentialFactory = Callable[[Body, Body], "PairPotential | Sequence[PairPotential]"]
 
 
 def gravity_between(a: Body, b: Body) -> NewtonianGravity:
@@ -54,9 +55,34 @@ def gravity_between(a: Body, b: Body) -> NewtonianGravity:
     return NewtonianGravity(mass_a_kg=a.mass_kg, mass_b_kg=b.mass_kg)
 
 
-#: protocol name -> factory building the pair potential for two bodies. Later potentials
-#: (Casimir-Polder, Coulomb) register here with a one-line insertion.
+#: protocol name -> factory building the pair potential for two bodies (used when a caller asks
+#: for potentials by name; protocol files go through ``[interactions]``, see :func:`interactions_between`).
 POTENTIAL_FACTORIES: dict[str, PairPotentialFactory] = {"gravity": gravity_between}
+
+_EM_KEYS = ("charge_c", "dipole_c_m", "relative_permittivity", "dispersion_resonance_rad_s", "material")
+
+
+def interactions_between(table):
+    """Factory for the potentials named by a validated ``[interactions]`` table, body pair by body pair.
+
+    Delegates to :func:`gqsim.confounders.potentials_from_tables` (gravity first; Casimir-Polder,
+    Coulomb, dipole terms; a conducting screen removes the electromagnetic ones), reading each
+    body's mass, radius and electromagnetic keys.
+    """
+    from gqsim.confounders import potentials_from_tables
+
+    def make(a: Body, b: Body):
+        tables = [{k: getattr(body, k) for k in _EM_KEYS if getattr(body, k) is not None} for body in (a, b)]
+        return potentials_from_tables(dict(table), tables, masses_kg=[a.mass_kg, b.mass_kg],
+                                      radii_m=[a.radius_m, b.radius_m])
+
+    make.__name__ = "interactions"
+    return make
+
+
+def _potentials(factory: PairPotentialFactory, a: Body, b: Body) -> tuple:
+    made = factory(a, b)
+    return tuple(made) if isinstance(made, (tuple, list)) else (made,)
 
 
 def symplectic_form(n_modes: int) -> np.ndarray:
@@ -132,8 +158,8 @@ def stiffness_matrix(bodies: Sequence[Body], factories: Sequence[PairPotentialFa
     for a in range(nb):
         for b in range(a + 1, nb):
             sep = np.subtract(bodies[b].position_m, bodies[a].position_m)
-            for factory in factories:
-                f_b, hess = pair_hessian(factory(bodies[a], bodies[b]), sep)
+            for pot in (p for factory in factories for p in _potentials(factory, bodies[a], bodies[b])):
+                f_b, hess = pair_hessian(pot, sep)
                 sa, sb = slice(3 * a, 3 * a + 3), slice(3 * b, 3 * b + 3)
                 full[sa, sa] += hess
                 full[sb, sb] += hess
@@ -223,6 +249,7 @@ class AnharmonicTerm:
 
     pair: tuple[str, str]
     weights: np.ndarray
+    label: str = "gravity"
     cubic: float
     quartic: float
 
@@ -315,13 +342,12 @@ def _anharmonic_terms(bodies, names, scales, factories, order) -> tuple[Anharmon
                                        f"cubic/quartic terms are implemented only for modes along the line of "
                                        f"centres; mode {names[i]} is not along {bodies[a].label}-{bodies[b].label}")
                 weights[i] = (1.0 if bi == b else -1.0) * n_hat[ax] * scales.length_m[i] / ell_ref
-            for factory in factories:
-                pot = factory(bodies[a], bodies[b])
+            for pot in (p for factory in factories for p in _potentials(factory, bodies[a], bodies[b])):
                 unit = hbar * scales.omega_unit_rad_s
                 c3 = radial_derivative(pot, d, 3) * ell_ref**3 / (6.0 * unit)
                 c4 = radial_derivative(pot, d, 4) * ell_ref**4 / (24.0 * unit) if order >= 4 else 0.0
                 terms.append(AnharmonicTerm(pair=(bodies[a].label, bodies[b].label), weights=weights,
-                                            cubic=c3, quartic=c4))
+                                            cubic=c3, quartic=c4, label=pot.label))
     return tuple(terms)
 
 
@@ -339,7 +365,10 @@ def build_model(setup: Setup, factories: Sequence[PairPotentialFactory] | None =
     PhysicsError
         when a trapped mode is left with non-positive stiffness and is not declared inverted.
     """
-    if factories is None:
+    if factories is None and setup.interactions is not None:
+        factories = [interactions_between(setup.interactions)]
+        labels = tuple(setup.potentials)
+    elif factories is None:
         factories = [POTENTIAL_FACTORIES[name] for name in setup.potentials]
         labels = tuple(setup.potentials)
     else:

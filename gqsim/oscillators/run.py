@@ -270,20 +270,27 @@ def analytic_companions(model: OscillatorModel, series: dict) -> dict:
         out["note"] = "analytic companions are printed for two single-mode bodies only"
         return _flatten(out)
     a, b = bodies
-    d = float(np.linalg.norm(np.subtract(b.position_m, a.position_m)))
+    sep = np.subtract(b.position_m, a.position_m)
+    d = float(np.linalg.norm(sep))
     wa, wb = model.scales.omega_ref_rad_s
     g = analytic.coupling_rate_rad_s(a.mass_kg, b.mass_kg, wa, wb, d)
     g_model = abs(float(model.coupling_rad_s[0, 1]))
-    axial = math.isclose(g_model, g, rel_tol=1e-9)
-    out["coupling_g_rad_s"] = _pair(g, g_model, "2 G m1 m2 x_zpf1 x_zpf2 / (hbar d^3) (along the axis)",
-                                    "model Hessian coupling")
-    lam = g / math.sqrt(wa * wb)
+    axis_a, axis_b = "xyz".index(a.modes[0]), "xyz".index(b.modes[0])
+    axial = axis_a == axis_b and math.isclose(abs(sep[axis_a]), d, rel_tol=1e-12)
+    if axial:
+        out["coupling_g_rad_s"] = _pair(g, g_model, "gravity alone: 2 G m1 m2 x_zpf1 x_zpf2 / (hbar d^3)",
+                                        "model Hessian coupling (all pair potentials)")
+    # lambda from the model's own coupling, so the laws below also hold with other pair potentials
+    lam = g_model / math.sqrt(wa * wb)
     out["lambda"] = float(lam)
     en = series["log_negativity"]
     times = model.setup.times_s
+    gravity_only = tuple(model.potentials) == ("gravity",)
     if axial and a.mass_kg == b.mass_kg and wa == wb:
-        out["ground_state_log_negativity"] = {"analytic": float(analytic.gravity_ground_state_log_negativity(lam)),
-                                              "formula": "-1/4 ln(1 - 4 lambda) = 1/2 ln(omega_+/omega_-)"}
+        if gravity_only:
+            out["ground_state_log_negativity"] = {
+                "analytic": float(analytic.gravity_ground_state_log_negativity(lam)),
+                "formula": "-1/4 ln(1 - 4 lambda) = 1/2 ln(omega_+/omega_-)"}
         trapped = all(np.allclose(2 * math.pi * np.asarray(s.trap_hz), [wa, wb]) and not s.inverted
                       for s in model.setup.stages)
         if trapped:
@@ -303,7 +310,7 @@ def analytic_companions(model: OscillatorModel, series: dict) -> dict:
         last = model.setup.stages[-1]
         if all(f == 0 for f in last.trap_hz) and len(model.setup.stages) >= 1:
             t_free = times[-1] - model.stage_boundaries_s()[-2]
-            if t_free > 0 and a.initial.occupation_at(wa) == 0:
+            if t_free > 0 and a.initial.occupation_at(wa) == 0 and gravity_only:
                 value = float(analytic.free_fall_log_negativity(a.mass_kg, wa, d, t_free, a.initial.squeeze_r))
                 en_before = float(np.interp(model.stage_boundaries_s()[-2], times, en))
                 out["free_fall"] = _pair(value, float(en[-1] - en_before),

@@ -179,6 +179,9 @@ class Body:
     material : material name, if known
     initial : :class:`InitialState`
     channels : :class:`BodyChannels`
+    charge_c, dipole_c_m, relative_permittivity, dispersion_resonance_rad_s : electromagnetic
+        properties read by the non-gravitational pair potentials of ``[interactions]``
+        (:mod:`gqsim.confounders`); None when not given
     """
 
     label: str
@@ -190,6 +193,10 @@ class Body:
     material: str | None = None
     initial: InitialState = field(default_factory=InitialState)
     channels: BodyChannels = field(default_factory=BodyChannels)
+    charge_c: float | None = None
+    dipole_c_m: tuple[float, float, float] | None = None
+    relative_permittivity: float | None = None
+    dispersion_resonance_rad_s: float | None = None
 
     def __post_init__(self):
         key = f"bodies[{self.label}]"
@@ -296,6 +303,8 @@ class Setup:
     times_s : output time grid [s], strictly increasing, within [0, total duration]
     side_a : labels of the bodies on side A of the reported bipartition
     potentials : names of the pair potentials acting between every pair (``"gravity"``)
+    interactions : the validated ``[interactions]`` table (:mod:`gqsim.confounders`), or None for
+        gravity alone
     solver : :class:`SolverOptions`
     title : free text from the protocol
     """
@@ -305,6 +314,7 @@ class Setup:
     times_s: np.ndarray
     side_a: tuple[str, ...]
     potentials: tuple[str, ...] = ("gravity",)
+    interactions: Mapping[str, Any] | None = None
     solver: SolverOptions = field(default_factory=SolverOptions)
     title: str = ""
 
@@ -348,7 +358,7 @@ class Setup:
                                 "must name at least one body and leave at least one on side B")
         for p in self.potentials:
             if p not in POTENTIAL_NAMES:
-                raise ProtocolError("interaction.potentials", p, f"must be one of {list(POTENTIAL_NAMES)}")
+                raise ProtocolError("interactions.include", p, f"must be one of {list(POTENTIAL_NAMES)}")
 
     @property
     def mode_names(self) -> tuple[str, ...]:
@@ -359,8 +369,9 @@ class Setup:
         return float(sum(s.duration_s for s in self.stages))
 
 
-#: pair potentials a protocol may name; the model stage maps each name to a factory.
-POTENTIAL_NAMES = ("gravity",)
+#: pair potentials a protocol may name in ``[interactions].include`` (built by gqsim.confounders).
+POTENTIAL_NAMES = ("gravity", "casimir_polder", "london_van_der_waals", "coulomb", "charge_induced_dipole",
+                   "dipole_dipole", "dipole_induced_dipole")
 
 
 # ---------------------------------------------------------------------------------------------
@@ -452,9 +463,13 @@ def setup_from_protocol(data: Mapping[str, Any]) -> Setup:
                 init[vec] = tuple(init[vec])
         initial = InitialState(**init)
         channels = BodyChannels(**dict(raw.get("channels", {})))
+        dipole = raw.get("dipole_c_m")
         bodies.append(Body(label=label, mass_kg=mass, position_m=tuple(pos), trap_hz=trap,
                            modes=tuple(raw.get("modes", ("x",))), radius_m=radius, material=mat,
-                           initial=initial, channels=channels))
+                           initial=initial, channels=channels, charge_c=raw.get("charge_c"),
+                           dipole_c_m=tuple(dipole) if dipole is not None else None,
+                           relative_permittivity=raw.get("relative_permittivity"),
+                           dispersion_resonance_rad_s=raw.get("dispersion_resonance_rad_s")))
         for axis_index, axis in enumerate(AXES):
             if axis not in bodies[-1].modes and (initial.displacement_m[axis_index] or initial.velocity_m_s[axis_index]):
                 raise ProtocolError(f"{key}.initial.displacement_m", list(initial.displacement_m),
@@ -472,10 +487,12 @@ def setup_from_protocol(data: Mapping[str, Any]) -> Setup:
     output = data.get("output", {})
     side_a = tuple(output.get("side_a", (bodies[0].label,)))
     solver = SolverOptions(**dict(data.get("solver", {})))
-    potentials = tuple(data.get("interaction", {}).get("potentials", ("gravity",)))
+    interactions = data.get("interactions")
+    potentials = tuple(interactions["include"]) if interactions is not None else ("gravity",)
     _check_overlap(bodies)
     return Setup(bodies=bodies, stages=stages, times_s=_time_grid(data, total), side_a=side_a,
-                 potentials=potentials, solver=solver, title=data.get("about", {}).get("title", ""))
+                 potentials=potentials, interactions=interactions, solver=solver,
+                 title=data.get("about", {}).get("title", ""))
 
 
 def _check_overlap(bodies: tuple[Body, ...]) -> None:

@@ -155,3 +155,22 @@ def test_scaling_makes_the_coupling_dimensionless_lambda():
     assert h[0, 0] == pytest.approx(1 - 2 * lam, rel=1e-12)
     assert h[1, 1] == 1.0
     assert model.scales.length_m[0] == pytest.approx(math.sqrt(hbar / (1e-6 * model.scales.omega_ref_rad_s[0])))
+
+
+def test_coulomb_pair_through_the_interactions_table():
+    # [interactions] include = ["gravity", "coulomb"] (gqsim.confounders): along the axis the Coulomb
+    # Hessian gives |g| = q^2 / (4 pi eps0 d^3 m omega) (Coulomb's law, Jackson 1999 ch. 1; the pair-Hessian
+    # expansion above); gravity adds 2 G m^2 x_zpf^2/(hbar d^3), negligible for ions
+    from scipy.constants import e, epsilon_0
+
+    m, d, f = 6.6359e-26, 50e-6, 1e6
+    data = pair(mass_kg=m, distance_m=d, trap_hz=f)
+    for body in data["bodies"]:
+        body["charge_c"] = e
+    data["interactions"] = {"include": ["gravity", "coulomb"]}
+    model = model_of(data)
+    omega = 2 * math.pi * f
+    coulomb = e**2 / (4 * math.pi * epsilon_0 * d**3 * m * omega)
+    gravity = G * m / (omega * d**3)
+    assert abs(model.coupling_rad_s[0, 1]) == pytest.approx(coulomb - gravity, rel=1e-9)
+    assert model.potentials == ("gravity", "coulomb")
