@@ -23,9 +23,10 @@ def both(data):
     return gauss, fock
 
 
-def test_closed_quench_agrees_with_gaussian_engine():
-    # lambda = 0.05 (dimensionless coupling in the 0.01-0.1 range), product ground state
-    data = pair(lam=0.05, periods=1.5, points=13)
+@pytest.mark.parametrize("lam", [0.01, 0.05, 0.1])
+def test_closed_quench_agrees_with_gaussian_engine(lam):
+    # dimensionless coupling across the 0.01-0.1 range, product ground state
+    data = pair(lam=lam, periods=1.5, points=13)
     gauss, fock = both(data)
     assert np.max(np.abs(gauss["log_negativity"] - fock["log_negativity"])) < AGREEMENT
     assert fock.summary["fock"]["fock_truncation_error_nats"] <= 1e-6
