@@ -315,7 +315,9 @@ CONDITION_LIMIT = 1e4
 def condition_numbers(covs: np.ndarray) -> np.ndarray:
     """Condition number of every covariance in a stack (n_times,)."""
     w = np.linalg.eigvalsh(covs)
-    return w[:, -1] / np.maximum(w[:, 0], np.finfo(float).tiny)
+    # a smallest eigenvalue at or below float64 resolution of the largest means "beyond float64 range"
+    resolved = w[:, 0] > w[:, -1] * np.finfo(float).eps
+    return np.where(resolved, w[:, -1] / np.where(resolved, w[:, 0], 1.0), np.inf)
 
 
 def _local_generator(full: np.ndarray) -> np.ndarray:

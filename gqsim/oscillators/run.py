@@ -92,7 +92,8 @@ def simulate_model(model: OscillatorModel, *, engine: str | None = None, protoco
         notes = ()
         if worst > CONDITION_LIMIT and not np.any(dynamics.measurement):
             traj = evolve_gaussian_precise(model, dynamics)
-            notes = (f"covariance condition number reached {worst:.2g} (free or inverted stages shear the wave "
+            shown = f"{worst:.2g}" if np.isfinite(worst) else "beyond float64 range"
+            notes = (f"covariance condition number reached {shown} (free or inverted stages shear the wave "
                      f"packets): the run was repeated in the local interaction frame with {traj.digits}-digit "
                      "arithmetic; entanglement measures come from the interaction-frame covariance",)
         series, summary = gaussian_series(model, traj.means, traj.covariances, traj.interaction_covariances)
@@ -107,7 +108,7 @@ def simulate_model(model: OscillatorModel, *, engine: str | None = None, protoco
     summary.update(_entanglement_summary(model.setup.times_s, series))
     summary["analytic"] = analytic_companions(model, series)
     units = {name: _unit(name) for name in series}
-    notes = tuple(notes) + _resolution_notes(model, series)
+    notes = tuple(notes) + _resolution_notes(model, series) + _expansion_notes(model, series)
     prov = Provenance(protocol=protocol.data if protocol else {}, source=protocol.source if protocol else "<model>",
                       engine=choice, options={"engine": choice, **_solver_options(model)},
                       versions=package_versions())
@@ -126,6 +127,24 @@ def _resolution_notes(model: OscillatorModel, series: dict) -> tuple[str, ...]:
         return (f"the pair coupling is lambda ~ {lam:.3g} (in trap units); entanglement of that order is below "
                 f"the float64 resolution of the engines (~{EN_FLOOR:.0e} nats), so E_N is reported as 0 where "
                 "it is not resolved: use the analytic companions",)
+    return ()
+
+
+#: position spread / closest centre distance above which the second-order (Hessian) expansion is
+#: flagged: the neglected cubic term is ~ (spread/d) times the kept quadratic one.
+EXPANSION_LIMIT = 0.05
+
+
+def _expansion_notes(model: OscillatorModel, series: dict) -> tuple[str, ...]:
+    """Flag runs whose wave packets spread to a sizeable fraction of the body separation."""
+    bodies = model.setup.bodies
+    closest = min(float(np.linalg.norm(np.subtract(a.position_m, b.position_m)))
+                  for i, a in enumerate(bodies) for b in bodies[i + 1:])
+    spread = max(float(np.max(v)) for k, v in series.items() if k.startswith("position_spread_m["))
+    if spread > EXPANSION_LIMIT * closest:
+        return (f"the position spread reaches {spread / closest:.2g} of the closest centre distance: the "
+                "second-order (Hessian) expansion of the pair potential needs spread << distance; check the "
+                "cubic and quartic terms with solver.anharmonic_order = 4 on the fock engine where feasible",)
     return ()
 
 
