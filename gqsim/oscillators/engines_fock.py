@@ -5,7 +5,7 @@ For what the Gaussian engine cannot do: the cubic and quartic terms of the pair 
 integrates the master equation of :mod:`gqsim.oscillators.channels` (scaled units, hbar = 1)
 
     d rho/dtau = -i [H, rho] + sum_k D[L_k] rho (- i gamma_v/2 [x, {p, rho}]),
-    H = 1/2 r^T H r + sum_pairs (c3 (w.x)^3 + c4 (w.x)^4),
+    H = 1/2 r^T H r + sum_pairs (order-3 and order-4 terms of V(|R + u_b - u_a|), AnharmonicTerm),
 
 with x = (a + a^dag)/sqrt2, p = -i(a - a^dag)/sqrt2 truncated at ``cutoff`` phonons per mode,
 through :mod:`gqsim.oscillators.qutip_adapter`. It works in the frame centred on the static
@@ -275,9 +275,7 @@ def _run(model: OscillatorModel, dynamics: OpenDynamics, cutoff: int) -> dict:
         ham = sum(0.5 * stage.hamiltonian[j, k] * (r_ops[j] @ r_ops[k])
                   for j in range(2 * n) for k in range(2 * n) if stage.hamiltonian[j, k] != 0)
         for term in model.anharmonic:
-            w = sum(c * xs[m] for m, c in enumerate(term.weights) if c != 0)
-            w2 = w @ w
-            ham = ham + term.cubic * (w2 @ w) + term.quartic * (w2 @ w2)
+            ham = ham + term.energy(xs, multiply=lambda p, q: p @ q)
         ham = (0.5 * (ham + ham.conj().T)).tocsr()
         later = inside[inside > t0]
         end = [] if later.size and later[-1] >= t1 else [t1]

@@ -242,16 +242,58 @@ class StageModel:
 
 @dataclass(frozen=True, kw_only=True)
 class AnharmonicTerm:
-    """Cubic and quartic terms of one pair potential along the line of centres.
+    """Cubic and quartic terms of one pair potential V(|R + u|), u = u_b - u_a, in any direction.
 
-    Energy / (hbar omega_unit) = c3 (w.x)^3 + c4 (w.x)^4 where w.x = (u_b - u_a).n / ell_ref.
+    Lengths are in units of ell_ref (the smallest mode length), energies in hbar omega_unit. With
+    s = n.u and q = |u|^2 (active axes only; inactive ones are frozen) and
+    |R + u| - d = delta_1 + delta_2 + delta_3 + delta_4 + O(u^5),
+    delta_1 = s, delta_2 = (q - s^2)/(2d), delta_3 = (s^3 - s q)/(2 d^2),
+    delta_4 = (-q^2/8 + 3 s^2 q/4 - 5 s^4/8)/d^3 (binomial series of d sqrt(1 + (2 d s + q)/d^2)),
+    the Taylor series V(d + delta) = sum_n V^(n) delta^n / n! (elementary calculus) gives
+    order 3: V1 delta_3 + V2 delta_1 delta_2 + V3 delta_1^3/6,
+    order 4: V1 delta_4 + V2 (delta_2^2/2 + delta_1 delta_3) + V3 delta_1^2 delta_2/2 + V4 delta_1^4/24,
+    with Vn the n-th radial derivative at d. Along the line of centres (q = s^2) this reduces to
+    V3 s^3/6 + V4 s^4/24.
+
+    Attributes
+    ----------
+    pair, label : the two bodies and the potential's label
+    s_weights : (n,) s = sum_i s_weights_i x_i
+    axis_weights : (3, n) u_axis = sum_i axis_weights[axis, i] x_i (q = sum over axes of u_axis^2)
+    distance : d / ell_ref
+    derivatives : (4,) V^(n)(d) ell_ref^n / (hbar omega_unit), n = 1..4
+    order : 3 or 4 (the highest order kept)
     """
 
     pair: tuple[str, str]
-    weights: np.ndarray
+    s_weights: np.ndarray
+    axis_weights: np.ndarray
+    distance: float
+    derivatives: np.ndarray
+    order: int
     label: str = "gravity"
-    cubic: float
-    quartic: float
+
+    def energy(self, x, multiply=None):
+        """Order-3 (+ order-4) energy for mode coordinates ``x`` (numbers, arrays or commuting operators).
+
+        ``x`` is a sequence of per-mode dimensionless positions; ``multiply`` multiplies two of them
+        (default ``*``; pass ``lambda a, b: a @ b`` for operator matrices).
+        """
+        mul = multiply or (lambda p, q: p * q)
+        s = sum(w * xi for w, xi in zip(self.s_weights, x) if w != 0)
+        comps = [sum(w * xi for w, xi in zip(row, x) if w != 0) for row in self.axis_weights if np.any(row)]
+        q = sum(mul(c, c) for c in comps)
+        d = self.distance
+        v1, v2, v3, v4 = self.derivatives
+        s2 = mul(s, s)
+        d2 = (q - s2) * (1.0 / (2 * d))
+        d3 = (mul(s2, s) - mul(s, q)) * (1.0 / (2 * d * d))
+        out = v1 * d3 + v2 * mul(s, d2) + (v3 / 6.0) * mul(s2, s)
+        if self.order >= 4:
+            d4 = (mul(q, q) * (-1.0 / 8) + mul(s2, q) * (3.0 / 4) + mul(s2, s2) * (-5.0 / 8)) * (1.0 / d**3)
+            out = (out + v1 * d4 + v2 * (mul(d2, d2) * 0.5 + mul(s, d3)) + (v3 / 2.0) * mul(s2, d2)
+                   + (v4 / 24.0) * mul(s2, s2))
+        return out
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -328,26 +370,22 @@ def _anharmonic_terms(bodies, names, scales, factories, order) -> tuple[Anharmon
         return ()
     terms = []
     ell_ref = float(scales.length_m.min())
+    unit = hbar * scales.omega_unit_rad_s
     for a in range(len(bodies)):
         for b in range(a + 1, len(bodies)):
             sep = np.subtract(bodies[b].position_m, bodies[a].position_m)
             d = float(np.linalg.norm(sep))
             n_hat = sep / d
-            weights = np.zeros(len(names))
+            axis_w = np.zeros((3, len(names)))
             for i, (bi, ax) in enumerate(_mode_index(bodies)):
-                if bi not in (a, b):
-                    continue
-                if not math.isclose(abs(n_hat[ax]), 1.0, rel_tol=0, abs_tol=1e-12):
-                    raise PhysicsError("solver.anharmonic_order", order,
-                                       f"cubic/quartic terms are implemented only for modes along the line of "
-                                       f"centres; mode {names[i]} is not along {bodies[a].label}-{bodies[b].label}")
-                weights[i] = (1.0 if bi == b else -1.0) * n_hat[ax] * scales.length_m[i] / ell_ref
+                if bi in (a, b):
+                    axis_w[ax, i] = (1.0 if bi == b else -1.0) * scales.length_m[i] / ell_ref
+            s_w = n_hat @ axis_w
             for pot in (p for factory in factories for p in _potentials(factory, bodies[a], bodies[b])):
-                unit = hbar * scales.omega_unit_rad_s
-                c3 = radial_derivative(pot, d, 3) * ell_ref**3 / (6.0 * unit)
-                c4 = radial_derivative(pot, d, 4) * ell_ref**4 / (24.0 * unit) if order >= 4 else 0.0
-                terms.append(AnharmonicTerm(pair=(bodies[a].label, bodies[b].label), weights=weights,
-                                            cubic=c3, quartic=c4, label=pot.label))
+                derivs = np.array([radial_derivative(pot, d, k) * ell_ref**k / unit for k in (1, 2, 3, 4)])
+                terms.append(AnharmonicTerm(pair=(bodies[a].label, bodies[b].label), s_weights=s_w,
+                                            axis_weights=axis_w, distance=d / ell_ref, derivatives=derivs,
+                                            order=order, label=pot.label))
     return tuple(terms)
 
 

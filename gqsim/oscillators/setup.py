@@ -259,7 +259,7 @@ class SolverOptions:
     fock_max_cutoff : largest phonon cutoff per mode the Fock engine may try
     fock_top_population : warn when the top Fock level of a mode holds more than this population
     anharmonic_order : 2 keeps the quadratic Hessian; 3 or 4 adds the cubic/quartic terms of the
-        pair potential along the line of centres (Fock engine only)
+        pair potentials' expansion in the displacements (any direction; Fock engine only)
     conditional : if True, continuous position measurement updates the covariance conditionally
         (Gaussian engine only)
     rtol, atol : relative/absolute tolerance of the Fock engine's ODE solver

@@ -78,21 +78,70 @@ def test_fock_state_input_keeps_its_phonon_number_without_coupling():
     assert np.allclose(result["log_negativity"], 0.0, atol=1e-12)
 
 
-def test_anharmonic_coefficients_follow_the_taylor_series_of_gravity():
-    # cubic/quartic terms of -G m^2/(d + delta): V'''/6 = G m^2/d^4, V''''/24 = -G m^2/d^5 (Taylor series)
+def test_anharmonic_run_matches_the_quadratic_one_for_tiny_packets():
+    # along the axis the terms reduce to V3 s^3/6 + V4 s^4/24 with V3 = 6 G m^2/d^4, V4 = -24 G m^2/d^5
+    # (Taylor series of -G m^2/r)
     data = pair(lam=0.05, periods=0.5, points=5, solver={"anharmonic_order": 4})
     model = build(protocol(data))
     (term,) = model.anharmonic
     m, d = 1.0, 0.05
     ell = model.scales.length_m.min()
     unit = hbar * model.scales.omega_unit_rad_s
-    assert term.cubic == pytest.approx(G * m * m / d**4 * ell**3 / unit, rel=1e-12)
-    assert term.quartic == pytest.approx(-G * m * m / d**5 * ell**4 / unit, rel=1e-12)
-    assert list(term.weights) == [-1.0, 1.0]  # delta = x_B - x_A along the axis
+    assert term.derivatives[2] == pytest.approx(6 * G * m * m / d**4 * ell**3 / unit, rel=1e-12)
+    assert term.derivatives[3] == pytest.approx(-24 * G * m * m / d**5 * ell**4 / unit, rel=1e-12)
+    assert list(term.s_weights) == [-1.0, 1.0]  # s = x_B - x_A along the axis
+    s = np.array([0.3, -1.1, 2.0])
+    assert np.allclose(term.energy([np.zeros(3), s]),
+                       term.derivatives[2] * s**3 / 6 + term.derivatives[3] * s**4 / 24, rtol=1e-12, atol=0)
     result = simulate(protocol(data))
     quadratic = simulate(protocol(pair(lam=0.05, periods=0.5, points=5)))
     # for a 1 kg pair 5 cm apart, x_zpf/d ~ 1e-16: the anharmonic correction is far below the tolerance
     assert np.max(np.abs(result["log_negativity"] - quadratic["log_negativity"])) < AGREEMENT
+
+
+def test_anharmonic_terms_match_the_exact_remainder_in_any_direction():
+    # V(|R + u|) - [V(d) + V'(d) n.u + u^T Hess u / 2] computed in 60-digit arithmetic (mpmath) for three
+    # bodies in general position with all axes active; the order-3 + order-4 polynomial must match it up to
+    # the O(u^5) remainder, bounded by 5 (G m_a m_b / d) (|u|/d)^5 (the fifth radial derivative of 1/r is
+    # 120/d^6, divided by 5!, times a geometric factor of order one)
+    import mpmath
+
+    from gqsim.oscillators.model import build_model
+    from gqsim.oscillators.setup import setup_from_protocol
+
+    data = pair(mass_kg=1.0, distance_m=0.1, trap_hz=1.0, solver={"anharmonic_order": 4})
+    data["bodies"].append({"label": "C", "mass_kg": 2.0, "position_m": [0.03, 0.08, -0.05], "trap_hz": 1.0})
+    for body in data["bodies"]:
+        body["modes"] = ["x", "y", "z"]
+    model = build_model(setup_from_protocol(protocol(data).data))
+    ell = model.scales.length_m.min()
+    unit = hbar * model.scales.omega_unit_rad_s
+    rng = np.random.default_rng(3)
+    scale = 1e-4 * 0.1 / ell  # displacements ~ 1e-4 of the separation, in units of ell
+    x = rng.normal(size=9) * scale
+    mp = mpmath.mp.clone()
+    mp.dps = 60
+    pos = [np.array(b.position_m) for b in model.setup.bodies]
+    masses = [b.mass_kg for b in model.setup.bodies]
+    for term in model.anharmonic:
+        ia, ib = ["ABC".index(lbl) for lbl in term.pair]
+        lengths = model.scales.length_m  # x_i is in units of each mode's own ell_i
+        u = [mp.mpf(float(x[3 * ib + k] * lengths[3 * ib + k])) - mp.mpf(float(x[3 * ia + k] * lengths[3 * ia + k]))
+             for k in range(3)]
+        rvec = [mp.mpf(float(pos[ib][k] - pos[ia][k])) for k in range(3)]
+        d = mp.sqrt(sum(c * c for c in rvec))
+        n = [c / d for c in rvec]
+        k_g = mp.mpf(G) * masses[ia] * masses[ib]
+        exact = -k_g / mp.sqrt(sum((rvec[k] + u[k]) ** 2 for k in range(3)))
+        s_ = sum(n[k] * u[k] for k in range(3))
+        q_ = sum(c * c for c in u)
+        quadratic = -k_g / d + (k_g / d**2) * s_ + ((-2 * k_g / d**3) * s_**2 + (k_g / d**3) * (q_ - s_**2)) / 2
+        remainder = float((exact - quadratic) / mp.mpf(float(unit)))
+        poly = term.energy(list(x))
+        cubic_only = float(type(term)(**{**term.__dict__, "order": 3}).energy(list(x)))
+        fifth = float(5 * k_g / d * (mp.sqrt(q_) / d) ** 5 / mp.mpf(float(unit)))
+        assert abs(poly - remainder) <= fifth
+        assert abs(poly - cubic_only) > 10 * fifth  # the quartic part is resolved, not lost in the remainder
 
 
 def test_truncation_warning_when_the_top_level_is_populated():
