@@ -347,6 +347,7 @@ def _series_from_moments(model: OscillatorModel, rec: dict) -> dict:
                        "duan_rotation_rad": duan["rotation_rad"]})
     series["purity"] = rec["purity"]
     series["mutual_information"] = rec["mutual_information"]
+    series["covariance"] = covs
     for i, name in enumerate(model.mode_names):
         series[f"position_spread_m[{name}]"] = np.sqrt(model.scales.position_variance_m2(covs[:, 2 * i, 2 * i], i))
         series[f"phonons[{name}]"] = (covs[:, 2 * i, 2 * i] + covs[:, 2 * i + 1, 2 * i + 1]) / 4 - 0.5

@@ -39,6 +39,7 @@ UNITS = {
     "position_spread_m": "m",
     "mean_displacement_m": "m",
     "phonons": "1",  # fluctuation quanta about the mean, preparation-trap ladder
+    "covariance": "vacuum units",  # sigma_jk = <{dr_j, dr_k}>, r = (x1, p1, ...), x_i = X_i / ell_i
 }
 
 #: E_N below this is reported as "not entangled" in windows. Measured resolution of the Gaussian
@@ -201,6 +202,8 @@ def gaussian_series(model: OscillatorModel, means: np.ndarray, covs: np.ndarray,
             ma, mb = model.body_modes(la), model.body_modes(lb)
             pair = measures.reduce(covs, ma + mb)
             series[f"log_negativity[{la}|{lb}]"] = measures.log_negativity(pair, list(range(len(ma), len(ma) + len(mb))))
+    # the covariance itself, lab frame, scaled quadratures (X_i = ell_i x_i, P_i = hbar p_i / ell_i)
+    series["covariance"] = lab
     scales = model.scales
     for i, name in enumerate(model.mode_names):
         var = scales.position_variance_m2(lab[:, 2 * i, 2 * i], i)
@@ -221,6 +224,8 @@ def _entanglement_summary(times: np.ndarray, series: dict) -> dict:
     """One entry per series (max, time of max, windows where it signals entanglement)."""
     out: dict = {}
     for name, values in series.items():
+        if values.ndim != 1:
+            continue
         k = int(np.argmax(values))
         entry = {"max": float(values[k]), "time_of_max_s": float(times[k])}
         base = name.split("[")[0]
@@ -269,6 +274,8 @@ def _model_summary(model: OscillatorModel, dynamics: OpenDynamics) -> dict:
         "frequency_shifts_rad_s": shifts,
         "static_displacement_m": {names[i]: float(model.static_displacement_m[i]) for i in range(model.n_modes)},
         "zero_point_m": {names[i]: float(scales.zero_point_m[i]) for i in range(model.n_modes)},
+        "covariance_order": [f"{q}[{name}]" for name in names for q in ("x", "p")],
+        "covariance_scale_m": {names[i]: float(scales.length_m[i]) for i in range(model.n_modes)},
         "stages": [{"label": s.label, "duration_s": s.duration_s} for s in model.stages],
         "channels": list(dynamics.labels),
         "conventions": "x = (a + a^dag)/sqrt2, p = -i(a - a^dag)/sqrt2 of each preparation trap; "

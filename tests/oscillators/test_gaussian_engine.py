@@ -199,6 +199,8 @@ def test_two_mode_result_carries_all_series_and_units():
         assert name in result.series
     assert result.units["log_negativity"].startswith("nats")
     assert result.summary["log_negativity"]["signals_entanglement"]
+    assert result["covariance"].shape == (result.times_s.size, 4, 4)
+    assert np.allclose(result["covariance"][0], np.eye(4))  # product vacuum: sigma = I in vacuum units
     # PPT (Simon 2000) and E_N > 0 must agree point by point for two-mode Gaussian states
     en = result["log_negativity"]
     assert np.array_equal(en > 1e-12, result["simon_min_eigenvalue"] < -1e-12)
