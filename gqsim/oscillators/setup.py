@@ -461,8 +461,11 @@ def setup_from_protocol(data: Mapping[str, Any]) -> Setup:
         for vec in ("displacement_m", "velocity_m_s"):
             if vec in init:
                 init[vec] = tuple(init[vec])
-        initial = InitialState(**init)
-        channels = BodyChannels(**dict(raw.get("channels", {})))
+        try:
+            initial = InitialState(**init)
+            channels = BodyChannels(**dict(raw.get("channels", {})))
+        except ProtocolError as exc:  # name the body the offending table belongs to
+            raise ProtocolError(f"{key}.{exc.key}", exc.value, exc.allowed) from None
         dipole = raw.get("dipole_c_m")
         bodies.append(Body(label=label, mass_kg=mass, position_m=tuple(pos), trap_hz=trap,
                            modes=tuple(raw.get("modes", ("x",))), radius_m=radius, material=mat,
