@@ -15,8 +15,10 @@ with A = Omega H + A_open piecewise constant over the stages. Over a step dt,
 
 and Phi, Q come from one block exponential (Theorem 1 of [VanLoan1978]):
 expm([[-A, D], [0, A^T]] dt) = [[., F12], [0, F22]] with F22 = Phi^T and Q = F22^T F12.
-No ODE stepping: the result is exact up to floating-point rounding. A uniform grid reuses one
-step propagator per stage. With conditional position measurement the covariance obeys the
+The mean's constant drive rides along in the same exponential (augmented drift [[A, b], [0, 0]]),
+so each distinct (stage, step) costs one (2n+1)-block exponential. No ODE stepping: the result is
+exact up to floating-point rounding. A uniform grid reuses one step propagator per stage, and the
+recursion over the grid runs in a compiled (numba) kernel. With conditional position measurement the covariance obeys the
 Riccati equation d sigma/dtau = A sigma + sigma A^T + D - sigma M sigma, solved exactly by the
 linear fractional form sigma = Y X^{-1}, d/dtau [X; Y] = [[-A^T, M], [D, A]] [X; Y]
 (Sec. 3 of [Genoni2016] for the equation; the linearisation is standard Riccati theory,
@@ -38,8 +40,8 @@ from gqsim.oscillators.model import OscillatorModel, initial_moments, symplectic
 __all__ = ["GaussianTrajectory", "van_loan", "evolve_gaussian", "evolve_gaussian_precise", "ground_state_covariance",
            "condition_numbers", "CONDITION_LIMIT"]
 
-#: step lengths equal to this relative precision share one cached propagator (uniform grids
-#: computed with linspace differ in the last bits).
+#: extended-precision path: step lengths equal to this many digits share one cached propagator
+#: (uniform grids computed with linspace differ in the last bits).
 _STEP_KEY_DIGITS = 13
 
 
