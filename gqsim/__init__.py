@@ -20,8 +20,40 @@ from gqsim.report import plot_measures, summary_table, write_outputs
 from gqsim.result import Result
 from gqsim.witnesses import optimal_witness_frame, spin_witness_lab, spin_witness_optimised
 
+# Entry points of the later stages, imported on first use so that `import gqsim` (and every
+# CLI command) does not pay for xarray, zarr or the oscillator engines it does not need.
+_LAZY = {
+    "CertifyOptions": "gqsim.certify",
+    "certify_result": "gqsim.certify",
+    "read_certify_file": "gqsim.certify",
+    "force_budget": "gqsim.force_budget",
+    "noise_budget": "gqsim.environment.budget",
+    "tolerable_limit": "gqsim.environment.budget",
+    "load_sweep": "gqsim.sweeps",
+    "run_sweep": "gqsim.sweeps",
+    "compare_routes": "gqsim.oscillators.compare",
+}
+
+
+def __getattr__(name):
+    if name in _LAZY:
+        import importlib
+
+        return getattr(importlib.import_module(_LAZY[name]), name)
+    raise AttributeError(f"module 'gqsim' has no attribute {name!r}")
+
+
 __all__ = [
     "__version__",
+    "CertifyOptions",
+    "certify_result",
+    "read_certify_file",
+    "force_budget",
+    "noise_budget",
+    "tolerable_limit",
+    "load_sweep",
+    "run_sweep",
+    "compare_routes",
     "ConvergenceError",
     "EngineError",
     "GqsimError",

@@ -25,9 +25,19 @@ def test_public_namespace_is_pinned():
         "load_protocol", "log_negativity", "mass_for_entangling_rate", "negativity", "optimal_witness_frame",
         "parse_protocol", "partial_transpose", "plot_measures", "purity", "simulate", "spin_witness_lab",
         "spin_witness_optimised", "summary_table", "write_outputs",
+        "CertifyOptions", "certify_result", "read_certify_file", "force_budget", "noise_budget",
+        "tolerable_limit", "load_sweep", "run_sweep", "compare_routes",
     ])
     for name in gqsim.__all__:
         assert hasattr(gqsim, name), name
+
+
+def test_command_list_is_pinned():
+    # Adding or renaming a command is a decision: update this list (and README) on purpose.
+    assert sorted(cli.commands) == ["certify", "check", "compare-routes", "forces", "noise", "run", "scan"]
+    assert sorted(cli.commands["forces"].commands) == ["budget", "safe-gap"]
+    assert sorted(cli.commands["noise"].commands) == ["budget", "limit"]
+    assert sorted(cli.commands["scan"].commands) == ["export", "map", "run", "status", "threshold"]
 
 
 def test_version_option():
