@@ -327,6 +327,11 @@ def evolve_fock(model: OscillatorModel, dynamics: OpenDynamics) -> FockRun:
                f"{opts.fock_top_population:.3g}")
         warnings.warn(msg, TruncationWarning, stacklevel=2)
         notes.append(msg)
+    peak = float(np.max(high["log_negativity"]))
+    if peak < 10 * opts.fock_tolerance:
+        notes.append(f"fock engine: E_N peaks at {peak:.3g} nats, below 10 x the cutoff tolerance "
+                     f"({opts.fock_tolerance:.3g} nats) and the ODE tolerances: these values are not resolved "
+                     "here; use the gaussian engine")
     series = _series_from_moments(model, high)
     summary = {"fock_cutoff": high_cut, "fock_cutoff_compared": cutoff, "fock_truncation_error_nats": err,
                "fock_top_level_population": top, "fock_estimated_max_phonons": n_max}
