@@ -61,7 +61,7 @@ def _ladder(n: int) -> np.ndarray:
     return np.diag(np.sqrt(np.arange(1, n, dtype=float)), k=1)
 
 
-def single_mode_state(initial, occupation: float, cutoff: int) -> np.ndarray:
+def single_mode_state(initial, occupation: float, cutoff: int, mode: int = 0) -> np.ndarray:
     """Density matrix (cutoff, cutoff) of one mode's initial state, renormalised after truncation.
 
     Gaussian: S(xi) rho_th S(xi)^dag with S(xi) = exp((xi* a^2 - xi a^dag^2)/2), xi = r e^{2 i theta}
@@ -84,7 +84,7 @@ def single_mode_state(initial, occupation: float, cutoff: int) -> np.ndarray:
         psi = np.where(keep, coeff, 0.0)
         psi = psi / np.linalg.norm(psi)
         return np.outer(psi, psi)
-    r = initial.squeeze_r
+    r, angle = initial.squeezing(mode)
     n_bar_total = (2 * occupation + 1) * math.cosh(2 * r) / 2
     big = max(2 * cutoff, cutoff + 40 + int(20 * n_bar_total))
     ratio = occupation / (occupation + 1) if occupation > 0 else 0.0
@@ -92,7 +92,7 @@ def single_mode_state(initial, occupation: float, cutoff: int) -> np.ndarray:
     rho = np.diag(pops).astype(complex)
     if r > 0:
         a = _ladder(big)
-        xi = r * np.exp(2j * (initial.squeeze_angle_rad or 0.0))
+        xi = r * np.exp(2j * angle)
         s = expm(0.5 * (np.conj(xi) * a @ a - xi * a.T @ a.T))
         rho = s @ rho @ s.conj().T
     rho = rho[:cutoff, :cutoff]
@@ -170,9 +170,9 @@ def _mode_states(model: OscillatorModel, cutoff: int) -> list[np.ndarray]:
     states = []
     i = 0
     for body in model.setup.bodies:
-        for _axis in body.modes:
+        for k, _axis in enumerate(body.modes):
             occ = body.initial.occupation_at(model.scales.omega_ref_rad_s[i]) if body.initial.kind == "gaussian" else 0.0
-            states.append(single_mode_state(body.initial, occ, cutoff))
+            states.append(single_mode_state(body.initial, occ, cutoff, k))
             i += 1
     return states
 

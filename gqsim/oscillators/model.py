@@ -444,12 +444,12 @@ def initial_moments(model: OscillatorModel) -> tuple[np.ndarray, np.ndarray]:
     i = 0
     for body in model.setup.bodies:
         init = body.initial
-        for axis in body.modes:
+        for k, axis in enumerate(body.modes):
             ax = AXES.index(axis)
             occ = init.occupation_at(scales.omega_ref_rad_s[i]) if init.kind == "gaussian" else 0.0
-            theta = init.squeeze_angle_rad or 0.0
+            r, theta = init.squeezing(k)
             rot = np.array([[math.cos(theta), -math.sin(theta)], [math.sin(theta), math.cos(theta)]])
-            squeeze = np.diag([math.exp(-2 * init.squeeze_r), math.exp(2 * init.squeeze_r)])
+            squeeze = np.diag([math.exp(-2 * r), math.exp(2 * r)])
             cov[2 * i:2 * i + 2, 2 * i:2 * i + 2] = (2 * occ + 1) * rot @ squeeze @ rot.T
             disp = model.static_displacement_m[i] + init.displacement_m[ax]
             mean[2 * i] = disp / scales.length_m[i]

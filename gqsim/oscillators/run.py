@@ -321,11 +321,11 @@ def analytic_companions(model: OscillatorModel, series: dict) -> dict:
                       for s in model.setup.stages)
         if trapped:
             n0 = a.initial.occupation_at(wa)
-            r = a.initial.squeeze_r
+            r, angle = a.initial.squeezing(0)
             if n0 == 0 and r == 0:
                 out["quench_max"] = _pair(2 * lam, float(en.max()), "2 lambda (E_N max over the run)",
                                           "simulated E_N max")
-            if n0 == 0 and r > 0 and abs(math.sin(a.initial.squeeze_angle_rad or 0.0)) < 1e-12:
+            if n0 == 0 and r > 0 and abs(math.sin(angle)) < 1e-12:
                 wt = wa * float(times[-1])
                 out["squeezed_growth"] = _pair(float(analytic.squeezed_quench_envelope(lam, wt, r)), float(en.max()),
                                                "2 lambda omega t sinh(2r) at the last time", "simulated E_N max")
@@ -337,7 +337,7 @@ def analytic_companions(model: OscillatorModel, series: dict) -> dict:
         if all(f == 0 for f in last.trap_hz) and len(model.setup.stages) >= 1:
             t_free = times[-1] - model.stage_boundaries_s()[-2]
             if t_free > 0 and a.initial.occupation_at(wa) == 0 and gravity_only:
-                value = float(analytic.free_fall_log_negativity(a.mass_kg, wa, d, t_free, a.initial.squeeze_r))
+                value = float(analytic.free_fall_log_negativity(a.mass_kg, wa, d, t_free, a.initial.squeezing(0)[0]))
                 en_before = float(np.interp(model.stage_boundaries_s()[-2], times, en))
                 out["free_fall"] = _pair(value, float(en[-1] - en_before),
                                          "(2/3) e^{2r} (G m/d^3) omega0 t^3 over the last (free) stage",

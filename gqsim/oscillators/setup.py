@@ -50,8 +50,10 @@ class InitialState:
     kind : ``"gaussian"`` (squeezed displaced thermal), ``"fock"`` or ``"cat"`` (Fock engine only)
     occupation : mean thermal phonon number before squeezing [1], >= 0
     temperature_k : alternative to ``occupation``: Bose-Einstein occupation at the trap frequency [K]
-    squeeze_r : squeezing parameter r >= 0 (position variance e^{-2r} times the thermal one at angle 0)
-    squeeze_angle_rad : squeezing angle; 0 squeezes position, pi/2 squeezes momentum [rad]
+    squeeze_r : squeezing parameter r >= 0 (position variance e^{-2r} times the thermal one at angle 0);
+        one number for every active mode of the body, or one per active mode (axis order x, y, z)
+    squeeze_angle_rad : squeezing angle; 0 squeezes position, pi/2 squeezes momentum [rad]; one
+        number or one per active mode
     displacement_m : mean displacement from the trap centre [m], (3,)
     velocity_m_s : mean velocity [m/s], (3,)
     fock_n : phonon number of a Fock initial state
@@ -62,8 +64,8 @@ class InitialState:
     kind: str = "gaussian"
     occupation: float | None = None
     temperature_k: float | None = None
-    squeeze_r: float = 0.0
-    squeeze_angle_rad: float | None = None
+    squeeze_r: float | tuple[float, ...] = 0.0
+    squeeze_angle_rad: float | tuple[float, ...] | None = None
     displacement_m: tuple[float, float, float] = (0.0, 0.0, 0.0)
     velocity_m_s: tuple[float, float, float] = (0.0, 0.0, 0.0)
     fock_n: int = 0
@@ -80,12 +82,21 @@ class InitialState:
             _finite("initial.occupation", self.occupation, minimum=0.0)
         if self.temperature_k is not None:
             _finite("initial.temperature_k", self.temperature_k, minimum=0.0)
-        _finite("initial.squeeze_r", self.squeeze_r, minimum=0.0)
-        if self.squeeze_r > 0 and self.squeeze_angle_rad is None:
+        rs = self.squeeze_r if isinstance(self.squeeze_r, (list, tuple)) else (self.squeeze_r,)
+        for r in rs:
+            _finite("initial.squeeze_r", r, minimum=0.0)
+        if isinstance(self.squeeze_r, (list, tuple)):
+            object.__setattr__(self, "squeeze_r", tuple(float(r) for r in rs))
+        if any(r > 0 for r in rs) and self.squeeze_angle_rad is None:
             raise ProtocolError("initial.squeeze_angle_rad", None,
                                 "is required when squeeze_r > 0 (0 squeezes position, pi/2 momentum)")
         if self.squeeze_angle_rad is not None:
-            _finite("initial.squeeze_angle_rad", self.squeeze_angle_rad)
+            angles = (self.squeeze_angle_rad if isinstance(self.squeeze_angle_rad, (list, tuple))
+                      else (self.squeeze_angle_rad,))
+            for angle in angles:
+                _finite("initial.squeeze_angle_rad", angle)
+            if isinstance(self.squeeze_angle_rad, (list, tuple)):
+                object.__setattr__(self, "squeeze_angle_rad", tuple(float(a) for a in angles))
         object.__setattr__(self, "displacement_m", _vec3("initial.displacement_m", self.displacement_m))
         object.__setattr__(self, "velocity_m_s", _vec3("initial.velocity_m_s", self.velocity_m_s))
         if isinstance(self.fock_n, bool) or not isinstance(self.fock_n, int) or self.fock_n < 0:
@@ -95,6 +106,13 @@ class InitialState:
             raise ProtocolError("initial.cat_parity", self.cat_parity, "must be even or odd")
         if self.kind == "cat" and self.cat_amplitude == 0 and self.cat_parity == "odd":
             raise ProtocolError("initial.cat_amplitude", 0.0, "an odd cat needs cat_amplitude > 0")
+
+    def squeezing(self, k: int) -> tuple[float, float]:
+        """(r, angle [rad]) of the body's k-th active mode."""
+        r = self.squeeze_r[k] if isinstance(self.squeeze_r, tuple) else self.squeeze_r
+        angle = self.squeeze_angle_rad
+        angle = angle[k] if isinstance(angle, tuple) else (angle or 0.0)
+        return float(r), float(angle)
 
     def occupation_at(self, omega_rad_s: float) -> float:
         """Thermal occupation [1] at angular frequency ``omega_rad_s`` [rad/s] (Bose-Einstein)."""
@@ -217,6 +235,12 @@ class Body:
                                     "(the initial state is defined in it)")
         if self.radius_m is not None:
             _finite(f"{key}.radius_m", self.radius_m, minimum=0.0, strict=True)
+        for name in ("squeeze_r", "squeeze_angle_rad"):
+            value = getattr(self.initial, name)
+            if isinstance(value, tuple) and len(value) != len(self.modes):
+                raise ProtocolError(f"{key}.initial.{name}", list(value),
+                                    f"needs one value per active mode ({len(self.modes)}: {', '.join(self.modes)}) "
+                                    "or a single number")
 
     def omega_rad_s(self, axis: str) -> float:
         """Preparation-trap angular frequency of ``axis`` [rad/s]."""
@@ -458,8 +482,8 @@ def setup_from_protocol(data: Mapping[str, Any]) -> Setup:
         trap = raw["trap_hz"]
         trap = (float(trap),) * 3 if isinstance(trap, (int, float)) else tuple(trap)
         init = dict(raw.get("initial", {}))
-        for vec in ("displacement_m", "velocity_m_s"):
-            if vec in init:
+        for vec in ("displacement_m", "velocity_m_s", "squeeze_r", "squeeze_angle_rad"):
+            if isinstance(init.get(vec), (list, tuple)):
                 init[vec] = tuple(init[vec])
         try:
             initial = InitialState(**init)

@@ -233,3 +233,20 @@ def test_every_output_state_is_physical(lam, gamma, n_bath, n0, r, angle, heatin
     covs = result["covariance"]
     assert np.all(ms.symplectic_eigenvalues(covs) >= 1 - 1e-9)
     assert np.all(result["purity"] <= 1 + 1e-9)
+
+
+def test_squeezing_per_mode():
+    # a body with two active axes: x squeezed (r = 0.5, angle 0), y anti-squeezed in position (angle pi/2):
+    # Var(X) = e^{-2r} x_zpf^2 and e^{+2r} x_zpf^2 (single-mode squeezed vacuum, textbook)
+    data = pair(distance_m=10.0, trap_hz=1.0, duration_s=1.0, points=2)
+    data["bodies"][0]["modes"] = ["x", "y"]
+    data["bodies"][0]["initial"] = {"squeeze_r": [0.5, 0.5], "squeeze_angle_rad": [0.0, math.pi / 2]}
+    data["time_grid"] = {"times_s": [0.0, 1.0]}
+    result = simulate(protocol(data))
+    zpf = math.sqrt(hbar / (2 * 1.0 * 2 * math.pi))
+    assert result["position_spread_m[A.x]"][0] == pytest.approx(zpf * math.exp(-0.5), rel=1e-12)
+    assert result["position_spread_m[A.y]"][0] == pytest.approx(zpf * math.exp(0.5), rel=1e-12)
+    data["bodies"][0]["initial"]["squeeze_r"] = [0.5, 0.5, 0.5]
+    from gqsim.errors import ProtocolError
+    with pytest.raises(ProtocolError, match="one value per active mode"):
+        simulate(protocol(data))
