@@ -21,7 +21,8 @@ from scipy.constants import G, hbar
 
 __all__ = [
     "coupling_rate_rad_s", "dimensionless_coupling", "superposition_phase_rate_rad_s", "ground_state_log_negativity",
-    "gravity_ground_state_log_negativity", "quench_log_negativity", "squeezed_quench_envelope", "thermal_threshold_occupation",
+    "gravity_ground_state_log_negativity", "quench_log_negativity", "squeezed_quench_envelope",
+    "thermal_threshold_occupation",
     "thermal_quench_max", "free_fall_log_negativity", "free_expansion_spread_m",
     "two_mode_squeezed_thermal_log_negativity",
 ]

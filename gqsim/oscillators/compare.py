@@ -117,7 +117,8 @@ def compare_routes(protocol: Protocol | str, *, branch_span_m: float | None = No
     if not (along or across):
         raise PhysicsError("bodies.modes", a.modes[0], "the active axis must be along or across the line of centres")
     osc = simulate_model(model, protocol=proto)
-    spread = np.sqrt(osc[f"position_spread_m[{model.mode_names[0]}]"] * osc[f"position_spread_m[{model.mode_names[1]}]"])
+    first, second = model.mode_names
+    spread = np.sqrt(osc[f"position_spread_m[{first}]"] * osc[f"position_spread_m[{second}]"])
     sigma = float(np.sqrt(np.mean(spread**2)))
     span = 2.0 * sigma if branch_span_m is None else float(branch_span_m)
     if not span > 0:

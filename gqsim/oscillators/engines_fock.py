@@ -171,7 +171,8 @@ def _mode_states(model: OscillatorModel, cutoff: int) -> list[np.ndarray]:
     i = 0
     for body in model.setup.bodies:
         for k, _axis in enumerate(body.modes):
-            occ = body.initial.occupation_at(model.scales.omega_ref_rad_s[i]) if body.initial.kind == "gaussian" else 0.0
+            gaussian = body.initial.kind == "gaussian"
+            occ = body.initial.occupation_at(model.scales.omega_ref_rad_s[i]) if gaussian else 0.0
             states.append(single_mode_state(body.initial, occ, cutoff, k))
             i += 1
     return states

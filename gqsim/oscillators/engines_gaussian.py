@@ -18,7 +18,8 @@ expm([[-A, D], [0, A^T]] dt) = [[., F12], [0, F22]] with F22 = Phi^T and Q = F22
 The mean's constant drive rides along in the same exponential (augmented drift [[A, b], [0, 0]]),
 so each distinct (stage, step) costs one (2n+1)-block exponential. No ODE stepping: the result is
 exact up to floating-point rounding. A uniform grid reuses one step propagator per stage, and the
-recursion over the grid runs in a compiled (numba) kernel. With conditional position measurement the covariance obeys the
+recursion over the grid runs in a compiled (numba) kernel. With conditional position measurement
+the covariance obeys the
 Riccati equation d sigma/dtau = A sigma + sigma A^T + D - sigma M sigma, solved exactly by the
 linear fractional form sigma = Y X^{-1}, d/dtau [X; Y] = [[-A^T, M], [D, A]] [X; Y]
 (Sec. 3 of [Genoni2016] for the equation; the linearisation is standard Riccati theory,

@@ -420,7 +420,8 @@ def build_model(setup: Setup, factories: Sequence[PairPotentialFactory] | None =
     try:
         static = np.linalg.solve(prep_total, force)
     except np.linalg.LinAlgError:
-        raise PhysicsError("bodies.trap_hz", "preparation traps", "the preparation stiffness matrix is singular") from None
+        raise PhysicsError("bodies.trap_hz", "preparation traps",
+                           "the preparation stiffness matrix is singular") from None
     zpf = scales.zero_point_m
     coupling = pair_k * np.outer(zpf, zpf) / hbar
     anharmonic = _anharmonic_terms(bodies, names, scales, factories, setup.solver.anharmonic_order)

@@ -26,7 +26,8 @@ def plot_oscillators(result, axes=None):
         _, axes = plt.subplots(2, 1, figsize=(7.5, 6.0), sharex=True)
     top, bottom = axes
     times = result.times_s
-    top.plot(times, result["log_negativity"], label="E_N (bipartition " + str(result.summary.get("bipartition", "")) + ")")
+    bipartition = result.summary.get("bipartition", "")
+    top.plot(times, result["log_negativity"], label=f"E_N (bipartition {bipartition})")
     for name, values in result.series.items():
         if name.startswith("log_negativity["):
             top.plot(times, values, ls="--", label=f"E_N {name[len('log_negativity'):]}")

@@ -201,7 +201,8 @@ def gaussian_series(model: OscillatorModel, means: np.ndarray, covs: np.ndarray,
         for la, lb in _pairs(model):
             ma, mb = model.body_modes(la), model.body_modes(lb)
             pair = measures.reduce(covs, ma + mb)
-            series[f"log_negativity[{la}|{lb}]"] = measures.log_negativity(pair, list(range(len(ma), len(ma) + len(mb))))
+            local_b = list(range(len(ma), len(ma) + len(mb)))
+            series[f"log_negativity[{la}|{lb}]"] = measures.log_negativity(pair, local_b)
     # the covariance itself, lab frame, scaled quadratures (X_i = ell_i x_i, P_i = hbar p_i / ell_i)
     series["covariance"] = lab
     scales = model.scales

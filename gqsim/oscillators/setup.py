@@ -475,7 +475,8 @@ def setup_from_protocol(data: Mapping[str, Any]) -> Setup:
         mass, radius, mat = _body_mass(raw, key)
         pos = raw.get("position_m")
         if pos is not None and positions[i] is not None:
-            raise ProtocolError(f"{key}.position_m", list(pos), "give positions in the body or in [arrangement], not both")
+            raise ProtocolError(f"{key}.position_m", list(pos),
+                                "give positions in the body or in [arrangement], not both")
         pos = pos if pos is not None else positions[i]
         if pos is None:
             raise ProtocolError(f"{key}.position_m", None, "is required (or give [arrangement] positions)")
@@ -498,7 +499,8 @@ def setup_from_protocol(data: Mapping[str, Any]) -> Setup:
                            relative_permittivity=raw.get("relative_permittivity"),
                            dispersion_resonance_rad_s=raw.get("dispersion_resonance_rad_s")))
         for axis_index, axis in enumerate(AXES):
-            if axis not in bodies[-1].modes and (initial.displacement_m[axis_index] or initial.velocity_m_s[axis_index]):
+            moving = initial.displacement_m[axis_index] or initial.velocity_m_s[axis_index]
+            if axis not in bodies[-1].modes and moving:
                 raise ProtocolError(f"{key}.initial.displacement_m", list(initial.displacement_m),
                                     f"axis {axis} is not an active mode of {label}; its components must be 0")
     bodies = tuple(bodies)
