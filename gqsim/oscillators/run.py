@@ -109,7 +109,8 @@ def simulate_model(model: OscillatorModel, *, engine: str | None = None, protoco
     summary.update(_entanglement_summary(model.setup.times_s, series))
     summary["analytic"] = analytic_companions(model, series)
     units = {name: _unit(name) for name in series}
-    notes = tuple(notes) + _resolution_notes(model, series) + _expansion_notes(model, series)
+    notes = (tuple(notes) + _resolution_notes(model, series) + _expansion_notes(model, series)
+             + _brownian_notes(model, series))
     prov = Provenance(protocol=protocol.data if protocol else {}, source=protocol.source if protocol else "<model>",
                       engine=choice, options={"engine": choice, **_solver_options(model)},
                       versions=package_versions())
@@ -147,6 +148,35 @@ def _expansion_notes(model: OscillatorModel, series: dict) -> tuple[str, ...]:
                 "second-order (Hessian) expansion of the pair potential needs spread << distance; check the "
                 "cubic and quartic terms with solver.anharmonic_order = 4 on the fock engine where feasible",)
     return ()
+
+
+#: k_B T / (hbar omega) below which the Caldeira-Leggett equation is flagged (it is derived for
+#: k_B T >> hbar omega and is not completely positive; common practice).
+BROWNIAN_TEMPERATURE_RATIO = 5.0
+
+
+def _brownian_notes(model: OscillatorModel, series: dict) -> tuple[str, ...]:
+    """Flag Caldeira-Leggett damping outside its high-temperature range, and unphysical states."""
+    from scipy.constants import hbar, k as k_B
+
+    out = []
+    for body in model.setup.bodies:
+        ch = body.channels
+        if ch.damping_model != "brownian" or not ch.damping_rate_per_s > 0:
+            continue
+        for i in model.body_modes(body.label):
+            ratio = k_B * ch.bath_temperature_k / (hbar * model.scales.omega_ref_rad_s[i])
+            if ratio < BROWNIAN_TEMPERATURE_RATIO:
+                out.append(f"{model.mode_names[i]}: Caldeira-Leggett damping at k_B T = {ratio:.3g} hbar omega; the "
+                           "equation holds for k_B T >> hbar omega and is not completely positive, so states can "
+                           "turn unphysical; prefer damping_model = \"quantum_optical\" here")
+                break
+    if "covariance" in series and out:
+        nu = measures.symplectic_eigenvalues(series["covariance"])
+        if np.any(nu < 1 - 1e-9):
+            out.append(f"the covariance violates the uncertainty principle (smallest symplectic eigenvalue "
+                       f"{float(nu.min()):.6g} < 1): the Caldeira-Leggett state is unphysical")
+    return tuple(out)
 
 
 def _unit(name: str) -> str:
