@@ -13,7 +13,7 @@ with A = Omega H + A_open piecewise constant over the stages. Over a step dt,
 
     sigma(t + dt) = Phi sigma(t) Phi^T + Q,   Phi = e^{A dt},   Q = int_0^dt e^{A s} D e^{A^T s} ds,
 
-and Phi, Q come from one block exponential (Theorem 1 of [VanLoan1978]):
+and Phi, Q come from one block exponential (Theorem 1 of [VanLoan1978], number from memory):
 expm([[-A, D], [0, A^T]] dt) = [[., F12], [0, F22]] with F22 = Phi^T and Q = F22^T F12.
 The mean's constant drive rides along in the same exponential (augmented drift [[A, b], [0, 0]]),
 so each distinct (stage, step) costs one (2n+1)-block exponential. No ODE stepping: the result is
@@ -59,7 +59,9 @@ class GaussianTrajectory:
 
 
 def van_loan(drift: np.ndarray, diffusion: np.ndarray, dt: float) -> tuple[np.ndarray, np.ndarray]:
-    """Phi = e^{A dt} and Q = int_0^dt e^{A s} D e^{A^T s} ds (Theorem 1 of [VanLoan1978]).
+    """Phi = e^{A dt} and Q = int_0^dt e^{A s} D e^{A^T s} ds.
+
+    Block-exponential identity, Theorem 1 of [VanLoan1978] (theorem number from memory).
 
     Parameters
     ----------
@@ -354,7 +356,7 @@ def evolve_gaussian_precise(model: OscillatorModel, dynamics: OpenDynamics, time
     that a float64 covariance no longer holds the correlations that carry entanglement. Here the
     covariance is kept in the frame of the local, uncoupled, noiseless motion L(t) = exp(A_0 t)
     (A_0 the per-mode blocks of Omega H): sigma = L sigma_I L^T. The step is the same Van Loan
-    result as :func:`evolve_gaussian` (Theorem 1 of [VanLoan1978]),
+    result as :func:`evolve_gaussian` (Theorem 1 of [VanLoan1978], number from memory),
     sigma_I' = M sigma_I M^T + L'^{-1} Q L'^{-T},  M = L'^{-1} Phi L,  L' = exp(A_0 dt) L,
     evaluated in ``digits``-digit arithmetic (mpmath) and rounded at the end. Because L is a local
     symplectic map, every entanglement measure of sigma equals that of sigma_I, which stays
