@@ -10,6 +10,8 @@ the a_1 a_2 coefficient of (1/hbar) int kappa X_1 X_2 dt is the two-mode squeezi
 xi(t), and for a product vacuum E_N ~ 2 |xi| (Eq. (16) of [VidalWerner2002] on a two-mode
 squeezed vacuum). Trapped: f = e^{-i omega t}, giving E_N = 2 lambda |sin omega t|. Released
 from a trap omega_0: f = 1 - i omega_0 t, giving E_N ~ (2/3) e^{2r} (G m / d^3) omega_0 t^3.
+
+Equation numbers cited in this module are recalled, not checked against the papers (from memory).
 """
 
 from __future__ import annotations

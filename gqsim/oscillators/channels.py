@@ -26,6 +26,8 @@ continuous position measurement: backaction identical to localisation with stren
 Moments (Eq. (4.x) of [Serafini2017]; [Genoni2016]): with sigma_jk = <{dr_j, dr_k}> (vacuum I),
     d rbar/dtau = A rbar - Omega h,   d sigma/dtau = A sigma + sigma A^T + D,
     A = Omega (H + Im(C^dag C)) + A_brownian,   D = 2 Omega Re(C^dag C) Omega^T.
+
+Equation numbers cited in this module are recalled, not checked against the papers (from memory).
 """
 
 from __future__ import annotations

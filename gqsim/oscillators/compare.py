@@ -19,6 +19,8 @@ theta = -(t/hbar)[V(d+Dx)+V(d-Dx)-2V(d)] ~ -V''(d) Dx^2 t/hbar (Eq. (2) of [Bose
 and E_N = log(1 + |sin(theta/2)|) ~ theta/2 (Eq. (3) of [VidalWerner2002], natural log).
 A trapped oscillator rotates X into P, so its E_N oscillates (2 lambda |sin(omega t)|); a released
 one keeps spreading. The comparison shows where the law holds for the protocol at hand.
+
+Equation numbers cited in this module are recalled, not checked against the papers (from memory).
 """
 
 from __future__ import annotations

@@ -18,6 +18,8 @@ quadratic dynamics) so that a squeezed-vacuum-like tail (n/(n+1))^(N/2) falls be
 tolerance; then verified by a second run at a larger cutoff. The reported truncation error is
 max_t |E_N(N) - E_N(N')|; a :class:`TruncationWarning` is raised when a mode's top level holds
 more population than ``solver.fock_top_population``.
+
+Equation numbers cited in this module are recalled, not checked against the papers (from memory).
 """
 
 from __future__ import annotations

@@ -24,6 +24,8 @@ Riccati equation d sigma/dtau = A sigma + sigma A^T + D - sigma M sigma, solved 
 linear fractional form sigma = Y X^{-1}, d/dtau [X; Y] = [[-A^T, M], [D, A]] [X; Y]
 (Sec. 3 of [Genoni2016] for the equation; the linearisation is standard Riccati theory,
 common practice).
+
+Equation numbers cited in this module are recalled, not checked against the papers (from memory).
 """
 
 from __future__ import annotations

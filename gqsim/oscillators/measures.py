@@ -5,6 +5,8 @@ vector r = (x_1, p_1, x_2, p_2, ...); covariance sigma_jk = <{dr_j, dr_k}> = 2 R
 so the vacuum has sigma = I (Simon's V = sigma / 2). Entropies and logarithmic negativity are
 in nats (natural log). Every function accepts one matrix (2n, 2n) or a stack (n_times, 2n, 2n)
 and returns a scalar per matrix.
+
+Equation numbers cited in this module are recalled, not checked against the papers (from memory).
 """
 
 from __future__ import annotations

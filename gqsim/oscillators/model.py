@@ -25,6 +25,8 @@ around the equilibrium separation R = d n; small-oscillation expansion, Ch. 6 of
     Hess = V''(d) n n^T + V'(d)/d (I - n n^T).
 For gravity V = -G m_a m_b / r this gives +2 G m_a m_b x_a x_b / d^3 along the axis with
 shifts -G m_a m_b x^2 / d^3, and -G m_a m_b x_a x_b / d^3 across it.
+
+Equation numbers cited in this module are recalled, not checked against the papers (from memory).
 """
 
 from __future__ import annotations
