@@ -81,9 +81,40 @@ class SuperpositionModel:
         vectors = self.relative_vectors(np.atleast_1d(sigma))
         return sum(pair_energy_at(p, vectors) for p in self.potentials)
 
+    def relative_pair_energies_j(self, sigma: np.ndarray) -> np.ndarray:
+        """(n, d_A, d_B) E_ab - E_00 [J], computed without cancellation.
+
+        When the branch span is tiny against the distance, the four E_ab agree in all but their
+        last digits and their plain differences are round-off. Here r_ab - r_00 is formed as
+        (v_ab - v_00).(v_ab + v_00) / (r_ab + r_00), with v_ab - v_00 = sigma (q_ab - q_00)
+        exact, and each potential turns it into U(r_ab) - U(r_00) through
+        :func:`energy_difference_j` (exact for gravity, midpoint rule for tiny differences
+        otherwise). The global phase -(1/hbar) int E_00 dt is dropped.
+        """
+        sigma = np.atleast_1d(np.asarray(sigma, dtype=float))
+        vectors = self.relative_vectors(sigma)  # (n, dA, dB, 3)
+        ref = vectors[:, :1, :1, :]
+        a, b = self.setup.bodies
+        q = a.offsets_m[:, None, :] - b.offsets_m[None, :, :]
+        dv = sigma[:, None, None, None] * (q - q[:1, :1])[None]
+        r = np.linalg.norm(vectors, axis=-1)
+        r0 = np.broadcast_to(r[:, :1, :1], r.shape)
+        delta = np.einsum("nabk,nabk->nab", dv, vectors + ref) / (r + r0)
+        return sum(energy_difference_j(p, vectors, ref, r, r0, delta) for p in self.potentials)
+
     # --------------------------------------------------------------- phases
+    def relative_phases_rad(self, times_s: np.ndarray) -> np.ndarray:
+        """(n_times, d_A, d_B) phi_ab(t) - phi_00(t) [rad] from :meth:`relative_pair_energies_j`:
+        the phases up to a global one, kept exact when the branch span is tiny. Used by the
+        engines and by the entangling phase."""
+        return self._integrated_phases(times_s, self.relative_pair_energies_j)
+
     def phases_rad(self, times_s: np.ndarray) -> np.ndarray:
-        """(n_times, d_A, d_B) interaction phases phi_ab(t) = -(1/hbar) int_0^t E_ab dt' [rad]."""
+        """(n_times, d_A, d_B) interaction phases phi_ab(t) = -(1/hbar) int_0^t E_ab dt' [rad]
+        (absolute; see :meth:`relative_phases_rad` for the form the engines use)."""
+        return self._integrated_phases(times_s, self.pair_energies_j)
+
+    def _integrated_phases(self, times_s, energies) -> np.ndarray:
         times = np.asarray(times_s, dtype=float)
         dA, dB = self.dims
         out = np.zeros((times.size, dA, dB))
@@ -93,19 +124,19 @@ class SuperpositionModel:
             if t1 <= t0:
                 continue
             if s0 == s1:  # static branches: phases grow linearly
-                rate = -self.pair_energies_j(np.array([s0]))[0] / hbar
+                rate = -energies(np.array([s0]))[0] / hbar
                 elapsed = np.clip(times - t0, 0.0, t1 - t0)
                 out += elapsed[:, None, None] * rate[None]
                 continue
-            full = self._moving_integral(s0, s1, t1 - t0, np.array([1.0]))[0]
+            full = self._moving_integral(energies, s0, s1, t1 - t0, np.array([1.0]))[0]
             out[times >= t1] += full
             inside = (times > t0) & (times < t1)
             if np.any(inside):
                 frac = (times[inside] - t0) / (t1 - t0)
-                out[inside] += self._moving_integral(s0, s1, t1 - t0, frac)
+                out[inside] += self._moving_integral(energies, s0, s1, t1 - t0, frac)
         return out
 
-    def _moving_integral(self, s0, s1, duration, fractions):
+    def _moving_integral(self, energies_of, s0, s1, duration, fractions):
         """-(1/hbar) int over the first ``fractions`` of a moving segment, (n_frac, d_A, d_B)."""
         def rule(panels):
             total = 0.0
@@ -113,7 +144,7 @@ class SuperpositionModel:
             for lo, hi in zip(edges[:-1], edges[1:]):
                 u = lo + (hi - lo) * (_GL_NODES + 1) / 2  # (k,) fraction of the partial interval
                 sig = s0 + (s1 - s0) * np.multiply.outer(fractions, u)  # (n, k)
-                energies = self.pair_energies_j(sig.ravel()).reshape(sig.shape + self.dims)
+                energies = energies_of(sig.ravel()).reshape(sig.shape + self.dims)
                 total = total + np.einsum("nkab,k->nab", energies, _GL_WEIGHTS) * (hi - lo) / 2
             return -total * (duration * fractions)[:, None, None] / hbar
 
@@ -160,15 +191,16 @@ class SuperpositionModel:
 
     # --------------------------------------------------------------- entangling phase
     def entangling_phase_rad(self, times_s: np.ndarray) -> np.ndarray:
-        """(n_times,) theta = phi_LR + phi_RL - phi_LL - phi_RR (L = branch 0, R = last branch)."""
-        phi = self.phases_rad(times_s)
+        """(n_times,) theta = phi_LR + phi_RL - phi_LL - phi_RR (L = branch 0, R = last branch),
+        from the cancellation-free relative phases."""
+        phi = self.relative_phases_rad(times_s)
         return phi[:, 0, -1] + phi[:, -1, 0] - phi[:, 0, 0] - phi[:, -1, -1]
 
     def entangling_phase_matrix_rad(self, time_s: float) -> np.ndarray:
         """Qudit generalisation at one time: theta[a, a', b, b'] = phi_ab' + phi_a'b - phi_ab - phi_a'b'
         [rad], shape (d_A, d_A, d_B, d_B); every local-unitary-invariant phase combination of the
         branch pairs (a, a') of A and (b, b') of B. For qubits theta[0, 1, 0, 1] is theta."""
-        phi = self.phases_rad(np.array([time_s]))[0]
+        phi = self.relative_phases_rad(np.array([time_s]))[0]
         return (phi[:, None, None, :] + phi[None, :, :, None]
                 - phi[:, None, :, None] - phi[None, :, None, :])
 
@@ -176,8 +208,32 @@ class SuperpositionModel:
         """d theta/dt while the branches are held apart [rad/s]:
         (G m_A m_B / hbar)(1/r_LR + 1/r_RL - 1/r_LL - 1/r_RR) for gravity alone
         (Eq. (3) of [Bose2017], from memory; shared §1.5-1.6); includes every pair potential."""
-        e = self.pair_energies_j(np.array([1.0]))[0]
-        return float(-(e[0, -1] + e[-1, 0] - e[0, 0] - e[-1, -1]) / hbar)
+        e = self.relative_pair_energies_j(np.array([1.0]))[0]  # e[0, 0] = 0 exactly
+        return float(-(e[0, -1] + e[-1, 0] - e[-1, -1]) / hbar)
+
+
+# Below this relative size, U(r1) - U(r2) is taken as U'(mid) (r1 - r2): midpoint error ~ (delta/r)^2 <= 1e-12.
+_MIDPOINT_BELOW = 1e-6
+
+
+def energy_difference_j(potential, vectors, ref, r, r0, delta) -> np.ndarray:
+    """U(r_ab) - U(r_00) [J] with delta = r_ab - r_00 given accurately.
+
+    Uses ``potential.energy_difference_j(r, r0, delta)`` when the potential has it (gravity:
+    exact), a midpoint derivative for relative differences below 1e-6 (error <= 1e-12
+    relative), and the plain difference otherwise (where round-off is <= 1e-10 relative).
+    Orientation-dependent potentials (fixed dipoles) take the plain difference of
+    ``pair_energy_at``.
+    """
+    if hasattr(potential, "energy_from_vector_j"):
+        return pair_energy_at(potential, vectors) - pair_energy_at(potential, ref)
+    exact = getattr(potential, "energy_difference_j", None)
+    if exact is not None:
+        return exact(r, r0, delta)
+    tiny = np.abs(delta) < _MIDPOINT_BELOW * r0
+    plain = potential.energy_j(r) - potential.energy_j(r0)
+    mid = np.asarray(potential.radial_derivative(r0 + delta / 2, 1)) * delta
+    return np.where(tiny, mid, plain)
 
 
 def build_superposition_model(setup: SuperpositionSetup, extra_potentials: tuple = ()) -> SuperpositionModel:

@@ -66,6 +66,11 @@ class NewtonianGravity:
         """U(r) = -G m_a m_b / r [J]."""
         return -G * self.mass_a_kg * self.mass_b_kg / np.asarray(r_m, dtype=float)
 
+    def energy_difference_j(self, r_m, r_ref_m, delta_m):
+        """U(r) - U(r_ref) = G m_a m_b (r - r_ref) / (r r_ref) [J], exact and free of cancellation
+        when ``delta_m`` = r - r_ref is supplied accurately."""
+        return G * self.mass_a_kg * self.mass_b_kg * np.asarray(delta_m) / (np.asarray(r_m) * np.asarray(r_ref_m))
+
     def radial_derivative(self, r_m, order: int):
         """d^n U/dr^n = (-1)^(n+1) n! G m_a m_b / r^(n+1) [J/m^n]."""
         r = np.asarray(r_m, dtype=float)

@@ -79,6 +79,16 @@ def _environment_channels(protocol: Protocol, setup) -> tuple[tuple, dict, list[
     return tuple(extras), rows, notes
 
 
+#: theta is a second difference of branch phases: its round-off is a few ulps of the largest one.
+THETA_ROUNDOFF_FACTOR = 4 * np.finfo(float).eps
+
+
+def _theta_roundoff_rad(model: SuperpositionModel, time_s: float) -> float:
+    """Round-off estimate of theta at ``time_s`` [rad]: 4 eps times the largest relative branch phase."""
+    phi = model.relative_phases_rad(np.array([time_s]))[0]
+    return float(THETA_ROUNDOFF_FACTOR * np.max(np.abs(phi)))
+
+
 def _unused_body_keys(protocol: Protocol) -> list[str]:
     """Notes for electromagnetic body keys given without the force that would use them."""
     include = set((protocol.data.get("interactions") or {}).get("include", ("gravity",)))
@@ -230,6 +240,12 @@ def _summarise(model: SuperpositionModel, series, times, states, engine):
         summary["entangling_phase"]["largest_pair_branches"] = {"body_a": [int(idx[0]), int(idx[1])],
                                                                 "body_b": [int(idx[2]), int(idx[3])]}
     notes = []
+    roundoff = _theta_roundoff_rad(model, hold_end)
+    summary["entangling_phase"]["roundoff_estimate_rad"] = roundoff
+    if theta_end != 0 and roundoff > 1e-6 * abs(theta_end):
+        notes.append(f"the branch phases are {roundoff / THETA_ROUNDOFF_FACTOR:.3g} rad while the entangling phase is "
+                     f"{theta_end:.3g} rad: double precision leaves it a relative round-off of about "
+                     f"{roundoff / abs(theta_end):.1g}")
     scale = model.field_phase_scale_rad()
     if scale > FIELD_PHASE_PRECISION_LIMIT_RAD:
         notes.append(f"the uniform field writes a relative branch phase of {scale:.3g} rad; its value modulo 2 pi "

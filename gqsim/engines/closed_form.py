@@ -52,10 +52,11 @@ def evolve(model: SuperpositionModel, channels: tuple, times_s: np.ndarray) -> E
 
 
 def branch_parameters(model: SuperpositionModel, channels: tuple, times: np.ndarray):
-    """The exact solution's ingredients: joint phases Phi_ab (n, d_A, d_B) [rad] and the decay
+    """The exact solution's ingredients: joint phases Phi_ab (n, d_A, d_B) [rad] (up to a global
+    phase, from the cancellation-free relative phases) and the decay
     exponents Gamma^A (n, d_A, d_A), Gamma^B (n, d_B, d_B)."""
     setup = model.setup
-    phases = model.phases_rad(times)
+    phases = model.relative_phases_rad(times)
     fa, fb = model.field_phases_rad(times)
     total = phases + fa[:, :, None] + fb[:, None, :]
     a, b = setup.bodies

@@ -5,7 +5,7 @@ Master equation integrated (Lindblad form, [Lindblad1976]; [GKS1976]):
     d rho/dt = -(i/hbar) [H(t), rho]
                + sum_k ( L_k rho L_k^dag - (1/2) {L_k^dag L_k, rho} ),
 
-    H(t)/hbar = sum_ab (E_ab(t)/hbar) |ab><ab|      (branch basis, mean removed)
+    H(t)/hbar = sum_ab ((E_ab(t) - E_00(t))/hbar) |ab><ab|   (branch basis; E_00 only adds a global phase)
 
 with, per body,
   * branch decoherence, two branches: L = sqrt(F(Delta(t))/2) sigma_z
@@ -104,11 +104,10 @@ def _hamiltonian(model: SuperpositionModel):
     size = dims[0] * dims[1]
 
     def diag_rad_s(sigma: float) -> np.ndarray:
-        e = model.pair_energies_j(np.array([sigma]))[0].ravel()
+        e = model.relative_pair_energies_j(np.array([sigma]))[0].ravel()
         from scipy.constants import hbar
 
-        w = e / hbar
-        return w - w.mean()
+        return e / hbar  # relative to branch pair (0, 0): a global phase, dropped
 
     if timing.split_s == 0 and timing.recombine_s == 0 and model.setup.times_s[-1] <= timing.total_s:
         return qutip.Qobj(np.diag(diag_rad_s(1.0)), dims=[list(dims), list(dims)])

@@ -194,3 +194,23 @@ def test_qudit_phase_matrix_generalises_theta():
     assert matrix[0, 2, 1, 2] == pytest.approx(phi[0, 2] + phi[2, 1] - phi[0, 1] - phi[2, 2], abs=1e-12)
     result = gqsim.simulate(two_body_protocol(branch_count=3, points=3))
     assert abs(result.summary["entangling_phase"]["largest_pair_phase_rad"]) == pytest.approx(np.abs(matrix).max())
+
+
+@pytest.mark.parametrize("style", ["in_line", "side_by_side"])
+def test_tiny_span_keeps_the_entangling_phase(style):
+    # Oscillator-scale numbers: 0.757 mg bodies 1 mm apart, branches 6.66 fm apart. Each branch
+    # phase is ~1e15 rad; theta ~ 1e-7 rad must still come out. Reference: the cancellation-free
+    # closed forms of the rate, in line (G m^2/hbar) 2 dx^2/(d (d^2 - dx^2)) and side by side
+    # (G m^2/hbar) 2 dx^2/(d s (d + s)), s = sqrt(d^2 + dx^2) (algebra on Bose et al. 2017, Eq. (2)).
+    m, d, dx, hold = 7.57e-7, 1e-3, 6.66e-15, 3.0
+    k = G * m**2 / hbar
+    if style == "in_line":
+        expected = k * 2 * dx**2 / (d * (d**2 - dx**2))
+    else:
+        s = np.hypot(d, dx)
+        expected = -k * 2 * dx**2 / (d * s * (d + s))
+    result = gqsim.simulate(two_body_protocol(style=style, distance=d, span=dx, mass=m, hold=hold, points=4))
+    theta = result.summary["entangling_phase"]["simulated_at_hold_end_rad"]
+    bound = result.summary["entangling_phase"]["roundoff_estimate_rad"]
+    assert abs(theta - expected * hold) <= bound
+    assert result.series["concurrence"][-1] == pytest.approx(abs(np.sin(expected * hold / 2)), rel=1e-4)
