@@ -65,7 +65,7 @@ class Protocol:
 #: the top-level table named by the fragment's stem (``environment-v1`` -> ``[environment]``).
 FAMILY_FRAGMENTS: dict[str, tuple[str, ...]] = {
     "superposition": ("confounders-v1", "environment-v1"),
-    "oscillators": (),
+    "oscillators": ("environment-v1",),
 }
 
 

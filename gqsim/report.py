@@ -177,8 +177,14 @@ def write_outputs(result: Result, out_dir: str | Path) -> list[Path]:
     path = out / "protocol.resolved.toml"
     path.write_text(tomli_w.dumps(dict(result.provenance.to_dict()["protocol"])))
     written.append(path)
-    fig, ax = plt.subplots(figsize=(10.0, 4.4))
-    plot_measures(result, ax=ax)
+    if result.family == "oscillators":
+        from gqsim.oscillators.plots import plot_oscillators
+
+        fig, axes = plt.subplots(2, 1, figsize=(8.0, 6.0), sharex=True)
+        plot_oscillators(result, axes)
+    else:
+        fig, ax = plt.subplots(figsize=(10.0, 4.4))
+        plot_measures(result, ax=ax)
     fig.tight_layout()
     for name in ("measures.png", "measures.pdf"):
         fig.savefig(out / name, dpi=150)

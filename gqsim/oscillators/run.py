@@ -59,9 +59,26 @@ def build(protocol) -> OscillatorModel:
     proto = _protocol(protocol)
     if proto.family != "oscillators":
         raise ProtocolError("family", proto.family, "gqsim.oscillators builds only family = \"oscillators\"")
-    model = build_model(setup_from_protocol(proto.data))
+    model = build_model(setup_from_protocol(_with_environment(proto)))
     build_channels(model)  # validates the channel numbers too
     return model
+
+
+def _with_environment(proto: Protocol):
+    """The protocol content with an ``[environment]`` table folded into each body's channels
+    (gas as Caldeira-Leggett damping at the gas temperature; photon, laser and extra
+    localisation added to ``localisation_per_m2_s``; see gqsim.environment.budget)."""
+    if proto.data.get("environment") is None:
+        return proto.data
+    from gqsim.environment.budget import _oscillator_bodies, oscillator_channel_table
+
+    data = proto.to_dict()
+    table = data.pop("environment")
+    setup, env, spheres = _oscillator_bodies(proto, table)
+    for index, (body, sphere) in enumerate(zip(setup.bodies, spheres)):
+        entry = data["bodies"][index]
+        entry["channels"] = oscillator_channel_table(env, sphere, body, entry.get("channels", {}), f"bodies[{index}]")
+    return data
 
 
 def simulate(protocol, *, engine: str | None = None) -> Result:

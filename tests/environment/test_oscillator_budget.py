@@ -18,7 +18,7 @@ from gqsim.errors import PhysicsError
 from gqsim.pipeline import simulate
 from gqsim.protocol import parse_protocol
 
-DEMO = Path(__file__).resolve().parent / "protocols" / "brackenfold-gas.toml"
+DEMO = Path(__file__).resolve().parents[2] / "protocols" / "brackenfold-gas.toml"
 RADIUS, RHO = 4.5e-4, 2200.0
 MASS = 4 / 3 * math.pi * RADIUS**3 * RHO
 HE = GAS_SPECIES["He"] * 1.66053906660e-27
