@@ -202,6 +202,9 @@ def decay_exponents(channel: BranchDecoherence, body: Body, timing: Timing, time
     """
     times = np.asarray(times_s, dtype=float)
     dist = body.branch_separations_m
+    if isinstance(channel, (ConstantDephasing, NoDephasing)):  # F independent of Delta: Gamma = gamma t
+        rate = channel.rate if isinstance(channel, ConstantDephasing) else 0.0
+        return np.multiply.outer(times, rate * (1.0 - np.eye(dist.shape[0])))
     out = np.zeros((times.size,) + dist.shape)
     for t0, t1, s0, s1 in timing.segments():
         if not np.isfinite(t1):

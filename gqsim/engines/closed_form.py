@@ -74,7 +74,7 @@ def states_from_parameters(model: SuperpositionModel, total: np.ndarray, ga: np.
                          np.exp(-np.ascontiguousarray(gb, dtype=np.float64)))
 
 
-@numba.njit(cache=True)
+@numba.njit(cache=True, fastmath=True)
 def _build_states(total, amps, qa, qb):  # pragma: no cover - compiled
     n, da, db = total.shape
     size = da * db

@@ -55,3 +55,14 @@ def test_equal_dephasing_concurrence_formula():
     q = np.linspace(1, 0.3, 50)
     got = phase_state_measures(theta, q, q)["concurrence"]
     np.testing.assert_allclose(got, np.maximum(0, q * np.abs(np.sin(theta / 2)) - (1 - q**2) / 2), atol=EXACT)
+
+
+def test_compiled_loop_equals_the_array_formulas():
+    # Series of 64 points or more use the compiled loop; shorter ones the numpy formulas.
+    rng = np.random.default_rng(11)
+    theta, qa, qb = rng.uniform(-7, 7, 500), rng.uniform(0, 1, 500), rng.uniform(0, 1, 500)
+    long = phase_state_measures(theta, qa, qb)
+    for k in range(0, 500, 50):
+        short = phase_state_measures(theta[k:k + 50], qa[k:k + 50], qb[k:k + 50])
+        for name in long:
+            np.testing.assert_allclose(long[name][k:k + 50], short[name], atol=EXACT)
