@@ -6,25 +6,18 @@ Parses options, calls :mod:`gqsim.environment.budget`, prints. No physics here.
 from __future__ import annotations
 
 import json
-import tomllib
 from pathlib import Path
 
 import click
 
-from gqsim.errors import ProtocolError
+from gqsim.protocol import read_toml
 
 __all__ = ["noise_group"]
 
 _KNOB_CHOICES = ["pressure", "temperature", "internal_temperature", "laser_power", "spin_dephasing"]
 
 
-def _read(path: Path) -> dict:
-    try:
-        return tomllib.loads(path.read_text(encoding="utf-8"))
-    except OSError as exc:
-        raise ProtocolError("protocol file", str(path), f"must be a readable file ({exc.strerror})") from None
-    except (UnicodeDecodeError, tomllib.TOMLDecodeError) as exc:
-        raise ProtocolError("protocol file", str(path), f"must be valid UTF-8 TOML ({exc})") from None
+_read = read_toml  # one-line errors for unreadable or malformed files
 
 
 def _certificate(text: str | None):

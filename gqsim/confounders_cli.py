@@ -4,23 +4,17 @@
 from __future__ import annotations
 
 import json
-import tomllib
 from pathlib import Path
 
 import click
 
 from gqsim.errors import ProtocolError
+from gqsim.protocol import read_toml
 
 __all__ = ["forces_group"]
 
 
-def _read_toml(path: Path) -> dict:
-    try:
-        return tomllib.loads(path.read_text(encoding="utf-8"))
-    except OSError as exc:
-        raise ProtocolError("protocol file", str(path), f"must be a readable file ({exc.strerror})") from None
-    except (UnicodeDecodeError, tomllib.TOMLDecodeError) as exc:
-        raise ProtocolError("protocol file", str(path), f"must be valid UTF-8 TOML ({exc})") from None
+_read_toml = read_toml  # one-line errors for unreadable or malformed files
 
 
 @click.group("forces")

@@ -29,7 +29,8 @@ import jsonschema
 
 from gqsim.errors import ProtocolError
 
-__all__ = ["Protocol", "SCHEMA_VERSION", "FAMILIES", "FAMILY_FRAGMENTS", "load_protocol", "parse_protocol", "schema_for"]
+__all__ = ["Protocol", "SCHEMA_VERSION", "FAMILIES", "FAMILY_FRAGMENTS", "load_protocol", "parse_protocol",
+           "read_toml", "schema_for"]
 
 SCHEMA_VERSION = 1
 
@@ -88,6 +89,21 @@ def schema_for(family: str, version: int = SCHEMA_VERSION) -> dict:
     return schema
 
 
+def read_toml(path: str | Path) -> dict:
+    """Parse the TOML file at ``path``; one-line ProtocolError if unreadable or not UTF-8 TOML."""
+    path = Path(path)
+    try:
+        raw = path.read_bytes()
+    except OSError as exc:
+        raise ProtocolError("protocol file", str(path), f"must be a readable file ({exc.strerror})") from None
+    try:
+        return tomllib.loads(raw.decode("utf-8"))
+    except UnicodeDecodeError:
+        raise ProtocolError("protocol file", str(path), "must be UTF-8 encoded TOML") from None
+    except tomllib.TOMLDecodeError as exc:
+        raise ProtocolError("protocol file", str(path), f"must be valid TOML ({exc})") from None
+
+
 def load_protocol(path: str | Path) -> Protocol:
     """Read and validate the protocol file at ``path``.
 
@@ -96,17 +112,7 @@ def load_protocol(path: str | Path) -> Protocol:
     ProtocolError
         naming the key, the value and what is allowed, for any problem with the file.
     """
-    path = Path(path)
-    try:
-        raw = path.read_bytes()
-    except OSError as exc:
-        raise ProtocolError("protocol file", str(path), f"must be a readable file ({exc.strerror})") from None
-    try:
-        data = tomllib.loads(raw.decode("utf-8"))
-    except UnicodeDecodeError:
-        raise ProtocolError("protocol file", str(path), "must be UTF-8 encoded TOML") from None
-    except tomllib.TOMLDecodeError as exc:
-        raise ProtocolError("protocol file", str(path), f"must be valid TOML ({exc})") from None
+    data = read_toml(path)
     return parse_protocol(data, source=str(path))
 
 

@@ -471,15 +471,7 @@ def duan_plan(covariance, times_s=None, *, a0: float | None = None, imprecision_
     fixed sd of the sum gives N_s - 1 proportional to Var_s, so
     N_s = 1 + 2 k^2 Var_s (Var_u + Var_v) / margin^2.
     """
-    cov = np.asarray(covariance, dtype=float)
-    if cov.shape[-2:] != (4, 4):
-        raise ProtocolError("covariance", cov.shape, "must be (4, 4) or (n, 4, 4), ordered (x1, p1, x2, p2)")
-    cov = cov.reshape(-1, 4, 4)
-    if not np.all(np.isfinite(cov)):
-        raise PhysicsError("covariance", "non-finite entries", "covariance matrices must be finite")
-    for key, val in (("imprecision_x", imprecision_x), ("imprecision_p", imprecision_p)):
-        if isinstance(val, bool) or not isinstance(val, (int, float)) or not (np.isfinite(val) and val >= 0):
-            raise ProtocolError(key, val, "must be a non-negative added variance (vacuum Var(x) = 1/2)")
+    cov = _checked_covariances(covariance, imprecision_x, imprecision_p)
     k = sigma_multiplier(None if sigmas is not None else confidence, sigmas=sigmas, power=power)
     _check_overhead(overhead_s)
     n = cov.shape[0]
@@ -677,15 +669,7 @@ def log_negativity_plan(covariance, times_s=None, *, imprecision_x: float = 0.0,
     N - 1 = k^2 Var_1 / g^2 on every setting. ``covariance`` (n, 4, 4) or (4, 4) in the
     vacuum = identity convention; noise variances as in :func:`duan_plan`.
     """
-    cov = np.asarray(covariance, dtype=float)
-    if cov.shape[-2:] != (4, 4):
-        raise ProtocolError("covariance", cov.shape, "must be (4, 4) or (n, 4, 4), ordered (x1, p1, x2, p2)")
-    cov = cov.reshape(-1, 4, 4)
-    if not np.all(np.isfinite(cov)):
-        raise PhysicsError("covariance", "non-finite entries", "covariance matrices must be finite")
-    for key, val in (("imprecision_x", imprecision_x), ("imprecision_p", imprecision_p)):
-        if isinstance(val, bool) or not isinstance(val, (int, float)) or not (np.isfinite(val) and val >= 0):
-            raise ProtocolError(key, val, "must be a non-negative added variance (vacuum Var(x) = 1/2)")
+    cov = _checked_covariances(covariance, imprecision_x, imprecision_p)
     k = sigma_multiplier(None if sigmas is not None else confidence, sigmas=sigmas, power=power)
     _check_overhead(overhead_s)
     design, offsets = _moment_design(imprecision_x, imprecision_p)
@@ -757,15 +741,7 @@ def covariance_witness_plan(covariance, times_s=None, *, imprecision_x: float = 
     exact: a^T P W P^T a / (N - 1) (P the least-squares pseudo-inverse, W the Wishart moment
     covariance of :func:`log_negativity_plan`). ``value`` is -lambda_min (positive = entangled).
     """
-    cov = np.asarray(covariance, dtype=float)
-    if cov.shape[-2:] != (4, 4):
-        raise ProtocolError("covariance", cov.shape, "must be (4, 4) or (n, 4, 4), ordered (x1, p1, x2, p2)")
-    cov = cov.reshape(-1, 4, 4)
-    if not np.all(np.isfinite(cov)):
-        raise PhysicsError("covariance", "non-finite entries", "covariance matrices must be finite")
-    for key, val in (("imprecision_x", imprecision_x), ("imprecision_p", imprecision_p)):
-        if isinstance(val, bool) or not isinstance(val, (int, float)) or not (np.isfinite(val) and val >= 0):
-            raise ProtocolError(key, val, "must be a non-negative added variance (vacuum Var(x) = 1/2)")
+    cov = _checked_covariances(covariance, imprecision_x, imprecision_p)
     k = sigma_multiplier(None if sigmas is not None else confidence, sigmas=sigmas, power=power)
     _check_overhead(overhead_s)
     coeff, const, lam = _linear_witness(cov)
@@ -870,3 +846,18 @@ def covariance_monte_carlo_check(covariance, plan: CovariancePlan, *, index: int
         se = refit.standard_deviation_one_shot / np.sqrt(n - 1)
     sd = float(plan.standard_deviation_one_shot[index] / np.sqrt(n - 1))
     return _gaussian_check(est, se, float(plan.value[index]), sd, plan.sigmas, trials, seed)
+
+
+def _checked_covariances(covariance, imprecision_x, imprecision_p) -> np.ndarray:
+    """(n, 4, 4) finite covariances ordered (x1, p1, x2, p2) and non-negative added quadrature
+    variances; one-line errors otherwise."""
+    cov = np.asarray(covariance, dtype=float)
+    if cov.shape[-2:] != (4, 4):
+        raise ProtocolError("covariance", cov.shape, "must be (4, 4) or (n, 4, 4), ordered (x1, p1, x2, p2)")
+    cov = cov.reshape(-1, 4, 4)
+    if not np.all(np.isfinite(cov)):
+        raise PhysicsError("covariance", "non-finite entries", "covariance matrices must be finite")
+    for key, val in (("imprecision_x", imprecision_x), ("imprecision_p", imprecision_p)):
+        if isinstance(val, bool) or not isinstance(val, (int, float)) or not (np.isfinite(val) and val >= 0):
+            raise ProtocolError(key, val, "must be a non-negative added variance (vacuum Var(x) = 1/2)")
+    return cov

@@ -159,7 +159,7 @@ def environment_sources(environment: Environment, sphere: Sphere,
         uses it. None takes the most strongly localised direction (conservative).
     """
     out: list[Source] = []
-    env, R, M = environment, sphere.radius_m, sphere.mass_kg
+    env, R = environment, sphere.radius_m
     if env.gas is not None and env.gas.pressure_pa > 0:
         gas, T = env.gas, env.gas_temperature_k
         lam = rates.gas_localisation_per_m2_s(gas.pressure_pa, T, gas.molecular_mass_kg, R)

@@ -313,10 +313,12 @@ def evolve_fock(model: OscillatorModel, dynamics: OpenDynamics) -> FockRun:
                                f"fock_max_cutoff = {opts.fock_max_cutoff}, dimension {MAX_HILBERT_DIMENSION}. "
                                "Use the gaussian engine")
     low = _run(model, dynamics, cutoff)
+    err = float("nan")  # no comparison made yet
     while True:
         high_cut = cutoff + step(cutoff)
         if high_cut ** n > MAX_HILBERT_DIMENSION or high_cut > opts.fock_max_cutoff:
-            raise ConvergenceError(f"fock engine: E_N still changes by {err:.3g} nats at cutoff {cutoff} "  # noqa: F821
+            change = "is not yet checked" if np.isnan(err) else f"still changes by {err:.3g} nats"
+            raise ConvergenceError(f"fock engine: E_N {change} at cutoff {cutoff} "
                                    f"(tolerance {opts.fock_tolerance:.3g}); limit reached")
         high = _run(model, dynamics, high_cut)
         err = float(np.max(np.abs(high["log_negativity"] - low["log_negativity"])))

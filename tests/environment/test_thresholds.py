@@ -6,8 +6,8 @@ import numpy as np
 import pytest
 from scipy.constants import atomic_mass
 
-from gqsim.environment import Environment, Gas, Laser, Sphere, ThermalRadiation, rates
-from gqsim.environment.thresholds import rate_limit, total_rate_per_s, with_knob
+from gqsim.environment import Environment, Gas, Laser, Sphere, ThermalRadiation
+from gqsim.environment.thresholds import rate_limit, total_rate_per_s
 from gqsim.errors import ProtocolError
 
 SPHERE = Sphere(radius_m=1e-6, mass_kg=1.4703e-14, thermal_permittivity=5.7 + 1e-3j)

@@ -11,7 +11,6 @@ from click.testing import CliRunner
 
 from gqsim.certify import (
     CertifyOptions,
-    CustomWitness,
     certify_result,
     options_from_mapping,
     plot_repetitions,
