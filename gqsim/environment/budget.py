@@ -239,72 +239,17 @@ def _branch_axis(body) -> np.ndarray:
     return d / np.linalg.norm(d)
 
 
-def _environment_channels(setup, env, spheres) -> tuple:
-    if env is None:
-        return ((), ())
-    from gqsim.environment.sources import EnvironmentDephasing
-
-    return tuple((EnvironmentDephasing(sources=environment_sources(env, sphere, _branch_axis(body))),)
-                 for body, sphere in zip(setup.bodies, spheres))
-
-
 def simulate_with_environment(protocol: Protocol, env_table: Mapping[str, Any] | None):
-    """Run a protocol with its environment channels added to every body; returns a Result.
-
-    Superposition: when the family schema already carries the ``environment`` key (the
-    fragment is wired in), the standard :func:`gqsim.pipeline.simulate` runs the protocol
-    with its table; otherwise the same model (``superposition_run.build``, so confounder
-    potentials are kept) runs with ``body_channel(body, extra=(environment F,))``.
-    Oscillators: the environment is merged into each body's ``channels`` table
-    (:func:`oscillator_channel_table`) and the standard pipeline runs it.
-    """
+    """Run ``protocol`` with ``env_table`` as its ``[environment]`` through the standard
+    :func:`gqsim.pipeline.simulate` (both family schemas carry the table; superposition runs
+    add the environment F(Delta) to each body, oscillator runs fold it into each body's
+    channels). Returns a :class:`gqsim.result.Result`."""
     from gqsim.pipeline import simulate
-    from gqsim.protocol import schema_for
 
-    if protocol.family == "oscillators":
-        return _simulate_oscillators(protocol, env_table)
-    if env_table is None or "environment" in schema_for(protocol.family).get("properties", {}):
-        data = protocol.to_dict()
-        if env_table is not None:
-            data["environment"] = copy.deepcopy(dict(env_table))
-        return simulate(parse_protocol(data, source=protocol.source))
-    return _simulate_superposition_here(protocol, env_table)
-
-
-def _simulate_superposition_here(protocol: Protocol, env_table: Mapping[str, Any]):
-    from gqsim.channels import body_channel
-    from gqsim.engines import closed_form, lindblad
-    from gqsim.measures import LOG_BASES
-    from gqsim.result import Provenance, Result, package_versions
-    from gqsim.superposition_run import build, measure_states
-
-    model = build(protocol)
-    setup = model.setup
-    _, env, spheres = _bodies_and_spheres(protocol, env_table)
-    extras = _environment_channels(setup, env, spheres)
-    channels = tuple(body_channel(b, extra=x) for b, x in zip(setup.bodies, extras))
-    times = setup.times_s
-    engine = setup.engine
-    if engine == "auto":
-        engine = "lindblad" if setup.has_spin_relaxation else "closed_form"
-    if engine == "closed_form":
-        evo = closed_form.evolve(model, channels, times)
-    else:
-        evo = lindblad.evolve(model, channels, times, rtol=setup.rtol, atol=setup.atol)
-    series = measure_states(evo.states, model.dims, setup.measures, setup.log_base,
-                            model.entangling_phase_rad(times))
     data = protocol.to_dict()
-    data["environment"] = copy.deepcopy(dict(env_table))
-    provenance = Provenance(protocol=data, source=protocol.source, engine=engine, options=dict(evo.stats),
-                            versions=package_versions())
-    units = {k: {"log_negativity": LOG_BASES[setup.log_base][1], "entangling_phase": "rad"}.get(k, "1")
-             for k in series}
-    summary = {name: {"max": float(np.max(v)), "time_of_max_s": float(times[int(np.argmax(v))])}
-               for name, v in series.items()}
-    summary["environment_channels"] = {b.label: [s.label for s in x[0].sources] if x else []
-                                       for b, x in zip(setup.bodies, extras)}
-    return Result(times_s=times, series=series, units=units, summary=summary,
-                  provenance=provenance, states=None, dims=model.dims, family="superposition")
+    if env_table is not None:
+        data["environment"] = copy.deepcopy(dict(env_table))
+    return simulate(parse_protocol(data, source=protocol.source))
 
 
 def noise_budget(data: Mapping[str, Any], *, source: str = "<memory>") -> NoiseBudget:
@@ -593,19 +538,6 @@ def oscillator_channel_table(environment, sphere, body, existing: Mapping[str, A
                      bath_temperature_k=gas[0].bath_temperature_k)
         table.pop("bath_occupation", None)
     return table
-
-
-def _simulate_oscillators(protocol: Protocol, env_table):
-    from gqsim.pipeline import simulate
-
-    data = protocol.to_dict()
-    if env_table is not None:
-        setup, env, spheres = _oscillator_bodies(protocol, env_table)
-        for index, (body, sphere) in enumerate(zip(setup.bodies, spheres)):
-            entry = data["bodies"][index]
-            entry["channels"] = oscillator_channel_table(env, sphere, body, entry.get("channels", {}),
-                                                         f"bodies[{index}]")
-    return simulate(parse_protocol(data, source=protocol.source))
 
 
 def oscillator_noise_budget(data: Mapping[str, Any], *, source: str = "<memory>") -> NoiseBudget:

@@ -7,19 +7,24 @@ import pytest
 
 import gqsim
 from scipy.constants import k, physical_constants
-from gqsim.environment.budget import _simulate_oscillators
+from gqsim.environment.budget import _oscillator_bodies, oscillator_channel_table
 
 DEMO = Path(__file__).resolve().parents[2] / "protocols" / "brackenfold-gas.toml"
 
 
-def test_run_equals_the_noise_tool_route():
+def test_run_equals_the_protocol_with_the_channels_written_out():
+    # The environment must act exactly as the merged channels table would if typed by hand.
     proto = gqsim.load_protocol(DEMO)
     direct = gqsim.simulate(proto)
-    table = proto.to_dict()["environment"]
     data = proto.to_dict()
-    data.pop("environment")
-    via_budget = _simulate_oscillators(gqsim.parse_protocol(data), table)
-    np.testing.assert_allclose(direct.series["log_negativity"], via_budget.series["log_negativity"], rtol=0, atol=1e-15)
+    table = data.pop("environment")
+    setup, env, spheres = _oscillator_bodies(gqsim.parse_protocol(data), table)
+    for index, (body, sphere) in enumerate(zip(setup.bodies, spheres)):
+        entry = data["bodies"][index]
+        entry["channels"] = oscillator_channel_table(env, sphere, body, entry.get("channels", {}), "b")
+    assert data["bodies"][0]["channels"]["damping_model"] == "brownian"
+    by_hand = gqsim.simulate(gqsim.parse_protocol(data))
+    np.testing.assert_array_equal(direct.series["log_negativity"], by_hand.series["log_negativity"])
     assert direct.provenance.protocol["environment"]["gas"]["species"] == "He"
 
 
