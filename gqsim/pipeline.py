@@ -8,6 +8,7 @@ command line and the notebook API stay family agnostic.
 from __future__ import annotations
 
 import importlib
+from dataclasses import replace
 from pathlib import Path
 from typing import Any, Callable
 
@@ -49,4 +50,16 @@ def simulate(protocol: Protocol | str | Path, *, engine: str | None = None) -> R
     proto = _as_protocol(protocol)
     if proto.family not in FAMILY_RUNNERS:
         raise ProtocolError("family", proto.family, f"must be one of {sorted(FAMILY_RUNNERS)}")
-    return _resolve(FAMILY_RUNNERS[proto.family][1])(proto, engine=engine)
+    result = _resolve(FAMILY_RUNNERS[proto.family][1])(proto, engine=engine)
+    return replace(result, summary={**result.summary, "noise_budget": _noise_budget_summary(proto)})
+
+
+def _noise_budget_summary(proto: Protocol) -> dict:
+    """Every decoherence channel of the run with its rate and share (gqsim.environment.budget);
+    ``gqsim noise budget`` prints the full table with references and tolerable limits."""
+    from gqsim.environment.budget import noise_budget
+
+    budget = noise_budget(proto.to_dict(), source=proto.source).to_json_dict()
+    rows = [{"body": c["body"], "channel": c["channel"], "rate": c["rate_per_s"], "share": c["share"],
+             "driver": c["driver"] or "-"} for c in budget["channels"]]
+    return {"quantity": budget["quantity"], "rows": rows}

@@ -57,12 +57,12 @@ def _num(value: Any) -> str:
 
 
 def _rows_table(rows) -> list[str]:
-    """A small fixed-width table of a list of flat records (e.g. a force budget)."""
+    """A small fixed-width table of a list of flat records (a force or noise budget)."""
     columns = [k for k in rows[0] if not isinstance(rows[0][k], (Mapping, list, tuple))]
-    width = 2 + max(max(len(c) for c in columns), *(len(_num(r.get(c))) for r in rows for c in columns))
-    out = ["  " + "".join(f"{c:>{width}}" for c in columns)]
+    widths = {c: 2 + max(len(c), *(len(_num(r.get(c))) for r in rows)) for c in columns}
+    out = ["  " + "".join(f"{c:>{widths[c]}}" for c in columns)]
     for row in rows:
-        out.append("  " + "".join(f"{_num(row.get(c)):>{width}}" for c in columns))
+        out.append("  " + "".join(f"{_num(row.get(c)):>{widths[c]}}" for c in columns))
     return out
 
 
@@ -101,6 +101,8 @@ def summary_table(result: Result) -> str:
             rows = values.get("rows")
             if isinstance(rows, (list, tuple)) and rows and all(isinstance(r, Mapping) for r in rows):
                 lines.extend(_rows_table(rows))
+            elif isinstance(rows, (list, tuple)) and not rows:
+                lines.append("  (none)")
     for note in result.notes:
         lines += ["", f"note: {note}"]
     return "\n".join(lines)

@@ -56,6 +56,8 @@ def test_every_bundled_protocol_runs_and_emits_json(path):
     assert isinstance(doc["summary"], dict)
     for values in doc["series"].values():
         assert len(values) == len(doc["times_s"])
+    # issue 4: every run shows its noise budget
+    assert {"quantity", "rows"} <= set(doc["summary"]["noise_budget"])
 
 
 def test_inline_json_carries_trade_names_and_log_base():
@@ -131,3 +133,14 @@ def test_plot_takes_and_returns_axes():
     assert gqsim.plot_measures(result, ax=ax) is ax
     assert ax.get_xlabel() == "time t [s]"
     plt.close(fig)
+
+
+def test_noise_budget_of_spin_errors_in_the_run_summary():
+    # Pure dephasing of a spin is 1/T2 - 1/(2 T1) (Nielsen & Chuang 2010, Sec. 8.3, from memory):
+    # T1 = 60 s, T2 = 20 s gives 0.041667 /s; shares of one body sum to 1.
+    result = gqsim.simulate(ROOT / "protocols" / "split-hold-recombine.toml")
+    rows = [r for r in result.summary["noise_budget"]["rows"] if r["body"] == "Tern"]
+    by_channel = {r["channel"]: r["rate"] for r in rows}
+    assert by_channel["spin pure dephasing (T2)"] == pytest.approx(1 / 20 - 1 / 120, rel=1e-12)
+    assert by_channel["spin relaxation (T1)"] == pytest.approx(1 / 120, rel=1e-12)
+    assert sum(r["share"] for r in rows) == pytest.approx(1.0, rel=1e-12)
