@@ -77,7 +77,7 @@ def main():
     channels = tuple(body_channel(b) for b in model.setup.bodies)
     times = model.setup.times_s
     ours(model, channels, times)  # compile the numba kernel outside the timing
-    t_ours, (states, series) = best_of(lambda: ours(model, channels, times), 20)
+    t_ours, (states, series) = best_of(lambda: ours(model, channels, times), 50)
     t_ref, (ref_states, ref_series) = best_of(lambda: reference(model, times, 0.05), 1)
     worst = max(float(np.max(np.abs(series[k] - ref_series[k]))) for k in ref_series)
     state_err = float(np.max(np.abs(states - np.stack([s.full() for s in ref_states]))))
