@@ -19,6 +19,8 @@ shared §1.8). No time stepping, hence no step-size error.
 
 from __future__ import annotations
 
+import math
+
 import numba
 import numpy as np
 
@@ -57,8 +59,11 @@ def branch_parameters(model: SuperpositionModel, channels: tuple, times: np.ndar
     exponents Gamma^A (n, d_A, d_A), Gamma^B (n, d_B, d_B)."""
     setup = model.setup
     phases = model.relative_phases_rad(times)
-    fa, fb = model.field_phases_rad(times)
-    total = phases + fa[:, :, None] + fb[:, None, :]
+    if np.any(setup.acceleration_m_s2):
+        fa, fb = model.field_phases_rad(times)
+        total = phases + fa[:, :, None] + fb[:, None, :]
+    else:
+        total = phases
     a, b = setup.bodies
     ga = decay_exponents(channels[0], a, setup.timing, times)
     same = channels[0] == channels[1] and np.array_equal(a.branch_separations_m, b.branch_separations_m)
@@ -70,17 +75,24 @@ def states_from_parameters(model: SuperpositionModel, total: np.ndarray, ga: np.
     """rho_{ab,a'b'} = c_a d_b c*_a' d*_b' e^{i(Phi_ab - Phi_a'b')} e^{-Gamma^A_aa' - Gamma^B_bb'}."""
     amps = model.initial_amplitudes().reshape(model.dims).astype(np.complex128)
     return _build_states(np.ascontiguousarray(total, dtype=np.float64), amps,
-                         np.exp(-np.ascontiguousarray(ga, dtype=np.float64)),
-                         np.exp(-np.ascontiguousarray(gb, dtype=np.float64)))
+                         np.ascontiguousarray(ga, dtype=np.float64), np.ascontiguousarray(gb, dtype=np.float64))
 
 
 @numba.njit(cache=True, fastmath=True)
-def _build_states(total, amps, qa, qb):  # pragma: no cover - compiled
+def _build_states(total, amps, ga, gb):  # pragma: no cover - compiled
     n, da, db = total.shape
     size = da * db
     rho = np.empty((n, size, size), dtype=np.complex128)
     psi = np.empty(size, dtype=np.complex128)
+    qa = np.empty((da, da))
+    qb = np.empty((db, db))
     for k in range(n):
+        for a in range(da):
+            for a2 in range(da):
+                qa[a, a2] = math.exp(-ga[k, a, a2])
+        for b in range(db):
+            for b2 in range(db):
+                qb[b, b2] = math.exp(-gb[k, b, b2])
         for a in range(da):
             for b in range(db):
                 phase = total[k, a, b]
@@ -91,5 +103,5 @@ def _build_states(total, amps, qa, qb):  # pragma: no cover - compiled
                 for a2 in range(da):
                     for b2 in range(db):
                         rho[k, a * db + b, a2 * db + b2] = (left * psi[a2 * db + b2].conjugate()
-                                                            * qa[k, a, a2] * qb[k, b, b2])
+                                                            * qa[a, a2] * qb[b, b2])
     return rho
