@@ -70,16 +70,17 @@ FAMILY_FRAGMENTS: dict[str, tuple[str, ...]] = {
 }
 
 
-def _read_schema_file(name: str) -> dict:
+def read_schema_file(name: str) -> dict:
+    """A JSON schema (or fragment) shipped in gqsim/schemas/."""
     text = resources.files("gqsim").joinpath("schemas").joinpath(name).read_text(encoding="utf-8")
     return json.loads(text)
 
 
 def schema_for(family: str, version: int = SCHEMA_VERSION) -> dict:
     """Return the JSON schema of ``family`` at ``version`` with its fragments merged (package data)."""
-    schema = _read_schema_file(f"{family}-v{version}.schema.json")
+    schema = read_schema_file(f"{family}-v{version}.schema.json")
     for fragment_name in FAMILY_FRAGMENTS.get(family, ()):
-        fragment = _read_schema_file(f"{fragment_name}.fragment.json")
+        fragment = read_schema_file(f"{fragment_name}.fragment.json")
         if "body_properties" in fragment or "top_level_properties" in fragment:
             schema["properties"]["bodies"]["items"]["properties"].update(fragment.get("body_properties", {}))
             schema["properties"].update(fragment.get("top_level_properties", {}))
@@ -89,19 +90,20 @@ def schema_for(family: str, version: int = SCHEMA_VERSION) -> dict:
     return schema
 
 
-def read_toml(path: str | Path) -> dict:
-    """Parse the TOML file at ``path``; one-line ProtocolError if unreadable or not UTF-8 TOML."""
+def read_toml(path: str | Path, what: str = "protocol file") -> dict:
+    """Parse the TOML file at ``path``; a one-line ProtocolError naming ``what`` if it is
+    unreadable or not UTF-8 TOML."""
     path = Path(path)
     try:
         raw = path.read_bytes()
     except OSError as exc:
-        raise ProtocolError("protocol file", str(path), f"must be a readable file ({exc.strerror})") from None
+        raise ProtocolError(what, str(path), f"must be a readable file ({exc.strerror})") from None
     try:
         return tomllib.loads(raw.decode("utf-8"))
     except UnicodeDecodeError:
-        raise ProtocolError("protocol file", str(path), "must be UTF-8 encoded TOML") from None
+        raise ProtocolError(what, str(path), "must be UTF-8 encoded TOML") from None
     except tomllib.TOMLDecodeError as exc:
-        raise ProtocolError("protocol file", str(path), f"must be valid TOML ({exc})") from None
+        raise ProtocolError(what, str(path), f"must be valid TOML ({exc})") from None
 
 
 def load_protocol(path: str | Path) -> Protocol:

@@ -30,9 +30,7 @@ import hashlib
 import json
 import math
 import re
-import tomllib
 from dataclasses import dataclass, field
-from importlib import resources
 from pathlib import Path
 from typing import Any, Mapping
 
@@ -40,7 +38,7 @@ import jsonschema
 import numpy as np
 
 from gqsim.errors import ProtocolError
-from gqsim.protocol import Protocol, load_protocol, parse_protocol
+from gqsim.protocol import Protocol, load_protocol, parse_protocol, read_schema_file, read_toml
 
 __all__ = [
     "Axis",
@@ -266,22 +264,10 @@ def _describe(values: Mapping[str, Any]) -> str:
 
 # ----------------------------------------------------------------------------- reading
 
-def _schema() -> dict:
-    text = resources.files("gqsim").joinpath("schemas").joinpath("sweep-v1.schema.json").read_text("utf-8")
-    return json.loads(text)
-
-
 def load_sweep(path: str | Path) -> SweepSpec:
     """Read and validate a sweep file; ``base_protocol`` is resolved relative to it."""
     path = Path(path)
-    try:
-        raw = path.read_bytes()
-    except OSError as exc:
-        raise ProtocolError("sweep file", str(path), f"must be a readable file ({exc.strerror})") from None
-    try:
-        data = tomllib.loads(raw.decode("utf-8"))
-    except (UnicodeDecodeError, tomllib.TOMLDecodeError) as exc:
-        raise ProtocolError("sweep file", str(path), f"must be valid UTF-8 TOML ({exc})") from None
+    data = read_toml(path, "sweep file")
     return parse_sweep(data, base_dir=path.parent, source=str(path))
 
 
@@ -294,7 +280,7 @@ def parse_sweep(data: Mapping[str, Any], *, base_dir: str | Path = ".", base: Pr
         raise ProtocolError("sweep", type(data).__name__, "must be a table of keys")
     if data.get("sweep_version") != SWEEP_VERSION:
         raise ProtocolError("sweep_version", data.get("sweep_version"), f"this gqsim reads sweep_version = {SWEEP_VERSION}")
-    validator = jsonschema.Draft202012Validator(_schema())
+    validator = jsonschema.Draft202012Validator(read_schema_file("sweep-v1.schema.json"))
     errors = sorted(validator.iter_errors(data), key=lambda e: (len(e.absolute_path), list(map(str, e.absolute_path))))
     if errors:
         raise _to_protocol_error(_most_specific(errors))
