@@ -172,6 +172,18 @@ class Body:
         o = self.offsets_m
         return np.linalg.norm(o[:, None, :] - o[None, :, :], axis=-1)
 
+    @property
+    def full_span_m(self) -> float:
+        """Largest distance between two fully split branches [m]."""
+        return float(np.max(self.branch_separations_m))
+
+    @property
+    def split_axis(self) -> np.ndarray:
+        """(3,) unit vector from one to the other of the two farthest-apart branches."""
+        seps = self.branch_separations_m
+        i, j = np.unravel_index(np.argmax(seps), seps.shape)
+        return (self.offsets_m[j] - self.offsets_m[i]) / seps[i, j]
+
 
 @dataclass(frozen=True, kw_only=True)
 class Timing:

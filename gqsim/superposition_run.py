@@ -61,20 +61,18 @@ def _environment_channels(protocol: Protocol, setup) -> tuple[tuple, dict, list[
     from gqsim.environment.parameters import environment_from_table, sphere_from_body_table
     from gqsim.environment.sources import EnvironmentDephasing, environment_sources, validity_notes
 
-    env = environment_from_table(protocol.to_dict()["environment"])
+    plain = protocol.to_dict()
+    env = environment_from_table(plain["environment"])
     extras, rows, notes = [], {}, []
-    for index, body in enumerate(setup.bodies):
-        entry = protocol.to_dict()["bodies"][index]
+    for entry, body in zip(plain["bodies"], setup.bodies):
         sphere = sphere_from_body_table({**entry, "label": body.label}, mass_kg=body.mass_kg,
                                         radius_m=body.radius_m, key=body.key)
-        seps = body.branch_separations_m
-        i, j = np.unravel_index(np.argmax(seps), seps.shape)
-        axis = (body.offsets_m[j] - body.offsets_m[i]) / seps[i, j]
-        channel = EnvironmentDephasing(sources=environment_sources(env, sphere, axis))
+        channel = EnvironmentDephasing(sources=environment_sources(env, sphere, body.split_axis))
         extras.append((channel,))
-        rows[body.label] = {"at_full_span_m": float(seps[i, j]),
-                            **{f"{label}_per_s": rate for label, rate in channel.rates_by_source(seps[i, j]).items()},
-                            "total_per_s": float(channel.rate_per_s(np.array(seps[i, j])))}
+        span = body.full_span_m
+        rows[body.label] = {"at_full_span_m": span,
+                            **{f"{label}_per_s": rate for label, rate in channel.rates_by_source(span).items()},
+                            "total_per_s": float(channel.rate_per_s(np.array(span)))}
         notes.extend(validity_notes(env, sphere))
     return tuple(extras), rows, notes
 

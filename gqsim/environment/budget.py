@@ -232,13 +232,6 @@ def _bodies_and_spheres(protocol: Protocol, env_table: Mapping[str, Any] | None)
     return setup, env, spheres
 
 
-def _branch_axis(body) -> np.ndarray:
-    seps = body.branch_separations_m
-    i, j = np.unravel_index(np.argmax(seps), seps.shape)
-    d = body.offsets_m[j] - body.offsets_m[i]
-    return d / np.linalg.norm(d)
-
-
 def simulate_with_environment(protocol: Protocol, env_table: Mapping[str, Any] | None):
     """Run ``protocol`` with ``env_table`` as its ``[environment]`` through the standard
     :func:`gqsim.pipeline.simulate` (both family schemas carry the table; superposition runs
@@ -272,7 +265,7 @@ def superposition_noise_budget(data: Mapping[str, Any], *, source: str = "<memor
         sep = float(np.max(body.branch_separations_m))
         rows = []
         if env is not None:
-            for src in environment_sources(env, sphere, _branch_axis(body)):
+            for src in environment_sources(env, sphere, body.split_axis):
                 rows.append((src.label, float(src.channel.rate_per_s(np.array(sep))), src.localisation_per_m2_s,
                              src.saturation_per_s, src.driver, src.reference))
             notes.extend(validity_notes(env, sphere))
@@ -489,7 +482,7 @@ def rule_of_thumb_limit(data: Mapping[str, Any], knob: str, *, source: str = "<m
         own = float(body_channel(body).rate_per_s(np.array(sep)))
         if own >= target:
             return 0.0
-        best = min(best, rate_limit(env, sphere, sep, knob, target - own, axis=_branch_axis(body)))
+        best = min(best, rate_limit(env, sphere, sep, knob, target - own, axis=body.split_axis))
     return best
 
 
