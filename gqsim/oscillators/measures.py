@@ -128,7 +128,8 @@ def duan_optimised(cov) -> dict:
     rotation invariant and the cross term c = tr(R(phi) Z C) (Z = diag(1, -1), C the 2x2
     correlation block of sigma, phi = -(t1 + t2)) has minimum -K, K = |(M11 + M22, M12 - M21)|,
     M = Z C. The ratio (a^2 s1 + s2/a^2 - K)/(a^2 + 1/a^2) is minimised in closed form:
-    a^2 = [-(s1 - s2) + sqrt((s1 - s2)^2 + K^2)]/K. Local squeezing is not optimised over, so this
+    a^2 = [-(s1 - s2) + sqrt((s1 - s2)^2 + K^2)]/K (evaluated as K/(s1 - s2 + sqrt(...)) when
+    s1 > s2, which avoids cancellation). Local squeezing is not optimised over, so this
     is a sufficient entanglement test; Simon's criterion is the necessary and sufficient one.
 
     Returns
@@ -148,8 +149,11 @@ def duan_optimised(cov) -> dict:
     # cross term tr(R(phi) M) = cos(phi) u1 + sin(phi) u2 is minimal at phi = atan2(-u2, -u1)
     phi = np.arctan2(-u2, -u1)
     diff = s1 - s2
+    root = np.hypot(diff, k)
+    # for s1 > s2 the textbook form cancels (to 0 when K << s1 - s2, weak coupling of unequal
+    # modes); K/(d + sqrt(d^2 + K^2)) is the same number without the cancellation
     safe_k = np.where(k > 0, k, 1.0)
-    a2 = np.where(k > 0, (-diff + np.sqrt(diff**2 + k**2)) / safe_k, 1.0)
+    a2 = np.where(k > 0, np.where(diff > 0, k / np.where(diff > 0, diff + root, 1.0), (root - diff) / safe_k), 1.0)
     value = a2 * s1 + s2 / a2 - k
     bound = a2 + 1.0 / a2
     out = {"value": value, "bound": bound, "scaling": np.sqrt(a2), "rotation_rad": phi}

@@ -68,6 +68,29 @@ def test_duan_finds_the_wrong_sign_pair_by_rotation():
     assert duan["value"] == pytest.approx(2 * math.exp(-1.0), abs=ROUNDING)
 
 
+@pytest.mark.parametrize("coupling", [1e-9, 1e-4, 0.3])
+def test_duan_scaling_is_the_true_minimum_for_unequal_modes(coupling):
+    """Duan 2000 Eq. (4) ratio (a^2 s1 + s2/a^2 - K)/(a^2 + 1/a^2) minimised over a by scipy's
+    bounded scalar minimiser equals the closed form; unequal local squeezing and a weak coupling
+    once made the textbook a^2 formula cancel to 0 (division by zero)."""
+    from scipy.optimize import minimize_scalar
+
+    sigma = np.diag([math.exp(-1.8), math.exp(1.8), 1.0, 1.0])  # mode 1 squeezed, mode 2 vacuum
+    sigma[0, 2] = sigma[2, 0] = coupling
+    duan = measures.duan_optimised(sigma)
+    s1, s2 = 0.5 * (sigma[0, 0] + sigma[1, 1]), 0.5 * (sigma[2, 2] + sigma[3, 3])
+    k = coupling  # |(M11 + M22, M12 - M21)| with M = Z C, C = [[coupling, 0], [0, 0]]
+
+    def ratio(log_a2):
+        a2 = math.exp(log_a2)
+        return (a2 * s1 + s2 / a2 - k) / (a2 + 1 / a2)
+
+    best = minimize_scalar(ratio, bounds=(-60.0, 60.0), method="bounded", options={"xatol": 1e-12})
+    assert np.isfinite(duan["value"]) and duan["scaling"] > 0
+    assert duan["value"] / duan["bound"] == pytest.approx(best.fun, rel=1e-9)
+    assert duan["value"] == pytest.approx(duan["scaling"] ** 2 * s1 + s2 / duan["scaling"] ** 2 - k, rel=1e-12)
+
+
 def test_squeezed_thermal_log_negativity():
     # Two-mode squeezed thermal: E_N = max(0, 2r - ln(2n+1)); r = 1, n = 1 -> 0.901388 (shared §5.1)
     assert measures.log_negativity(tmsv(1.0, 1.0), [1]) == pytest.approx(0.901388, abs=5e-7)
