@@ -31,6 +31,7 @@ Equation numbers cited in this module are recalled, not checked against the pape
 
 from __future__ import annotations
 
+import functools
 import math
 from dataclasses import dataclass, field
 from typing import Callable, Sequence
@@ -45,7 +46,7 @@ from gqsim.potentials import NewtonianGravity, PairPotential
 __all__ = [
     "Scales", "StageModel", "AnharmonicTerm", "OscillatorModel", "PairPotentialFactory",
     "gravity_between", "POTENTIAL_FACTORIES", "interactions_between", "pair_hessian", "stiffness_matrix",
-    "build_model", "symplectic_form", "radial_derivative",
+    "build_model", "symplectic_form", "radial_derivative", "squeezed_thermal_covariance",
 ]
 
 #: (body_a, body_b) -> one pair potential, or a sequence of them
@@ -87,9 +88,16 @@ def _potentials(factory: PairPotentialFactory, a: Body, b: Body) -> tuple:
     return tuple(made) if isinstance(made, (tuple, list)) else (made,)
 
 
+@functools.lru_cache(maxsize=16)
 def symplectic_form(n_modes: int) -> np.ndarray:
-    """Omega = direct sum of [[0, 1], [-1, 0]] over ``n_modes`` modes, (2n, 2n)."""
-    return np.kron(np.eye(n_modes), np.array([[0.0, 1.0], [-1.0, 0.0]]))
+    """Omega = direct sum of [[0, 1], [-1, 0]] over ``n_modes`` modes, (2n, 2n); read-only and
+    cached (every model build and measure asks for it)."""
+    omega = np.zeros((2 * n_modes, 2 * n_modes))
+    idx = np.arange(0, 2 * n_modes, 2)
+    omega[idx, idx + 1] = 1.0
+    omega[idx + 1, idx] = -1.0
+    omega.setflags(write=False)
+    return omega
 
 
 def radial_derivative(potential: PairPotential, r_m: float, order: int) -> float:
@@ -432,6 +440,23 @@ def build_model(setup: Setup, factories: Sequence[PairPotentialFactory] | None =
                            coupling_rad_s=coupling, anharmonic=anharmonic, potentials=labels)
 
 
+def squeezed_thermal_covariance(occupation, squeeze_r, angle_rad) -> np.ndarray:
+    """Covariance (..., 2, 2) of a squeezed thermal state of one mode, vacuum sigma = I:
+    sigma = (2 n + 1) R(theta) diag(e^{-2r}, e^{2r}) R(theta)^T, written out element by element
+    so that scalars and arrays of (n, r, theta) give the same numbers (Eq. (3.x) of
+    [Serafini2017], single-mode Gaussian states; equation number from memory).
+    """
+    n, r, theta = np.broadcast_arrays(*(np.asarray(v, dtype=float) for v in (occupation, squeeze_r, angle_rad)))
+    c, s = np.cos(theta), np.sin(theta)
+    lo, hi = np.exp(-2 * r), np.exp(2 * r)
+    scale = 2 * n + 1
+    out = np.empty(n.shape + (2, 2))
+    out[..., 0, 0] = scale * (c * c * lo + s * s * hi)
+    out[..., 1, 1] = scale * (s * s * lo + c * c * hi)
+    out[..., 0, 1] = out[..., 1, 0] = scale * (c * s * (lo - hi))
+    return out
+
+
 def initial_moments(model: OscillatorModel) -> tuple[np.ndarray, np.ndarray]:
     """Mean (2n,) and covariance (2n, 2n) of the initial Gaussian state in scaled units.
 
@@ -443,6 +468,7 @@ def initial_moments(model: OscillatorModel) -> tuple[np.ndarray, np.ndarray]:
     n = model.n_modes
     mean = np.zeros(2 * n)
     cov = np.zeros((2 * n, 2 * n))
+    params = np.zeros((n, 3))  # occupation, r, theta of each mode
     scales = model.scales
     i = 0
     for body in model.setup.bodies:
@@ -450,12 +476,12 @@ def initial_moments(model: OscillatorModel) -> tuple[np.ndarray, np.ndarray]:
         for k, axis in enumerate(body.modes):
             ax = AXES.index(axis)
             occ = init.occupation_at(scales.omega_ref_rad_s[i]) if init.kind == "gaussian" else 0.0
-            r, theta = init.squeezing(k)
-            rot = np.array([[math.cos(theta), -math.sin(theta)], [math.sin(theta), math.cos(theta)]])
-            squeeze = np.diag([math.exp(-2 * r), math.exp(2 * r)])
-            cov[2 * i:2 * i + 2, 2 * i:2 * i + 2] = (2 * occ + 1) * rot @ squeeze @ rot.T
+            params[i] = (occ, *init.squeezing(k))
             disp = model.static_displacement_m[i] + init.displacement_m[ax]
             mean[2 * i] = disp / scales.length_m[i]
             mean[2 * i + 1] = body.mass_kg * init.velocity_m_s[ax] * scales.length_m[i] / hbar
             i += 1
+    blocks = squeezed_thermal_covariance(*params.T)
+    for i in range(n):
+        cov[2 * i:2 * i + 2, 2 * i:2 * i + 2] = blocks[i]
     return mean, cov

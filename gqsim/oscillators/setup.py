@@ -20,7 +20,7 @@ from gqsim.materials import material as lookup_material
 
 __all__ = [
     "AXES", "InitialState", "BodyChannels", "Body", "Stage", "SolverOptions", "Setup",
-    "setup_from_protocol", "mode_names",
+    "setup_from_protocol", "initial_state_from_table", "mode_names",
 ]
 
 AXES = ("x", "y", "z")
@@ -464,6 +464,19 @@ def _time_grid(data: Mapping[str, Any], total: float) -> np.ndarray:
     return np.linspace(0.0, total, points)
 
 
+def initial_state_from_table(table: Mapping[str, Any], key: str) -> InitialState:
+    """The :class:`InitialState` of a body's ``initial`` table; ``key`` (``"bodies[i]"``) prefixes
+    the field named by an error."""
+    init = dict(table)
+    for vec in ("displacement_m", "velocity_m_s", "squeeze_r", "squeeze_angle_rad"):
+        if isinstance(init.get(vec), (list, tuple)):
+            init[vec] = tuple(init[vec])
+    try:
+        return InitialState(**init)
+    except ProtocolError as exc:
+        raise ProtocolError(f"{key}.{exc.key}", exc.value, exc.allowed) from None
+
+
 def setup_from_protocol(data: Mapping[str, Any]) -> Setup:
     """Turn a schema-validated oscillators protocol mapping into a :class:`Setup`."""
     raw_bodies = list(data["bodies"])
@@ -482,12 +495,8 @@ def setup_from_protocol(data: Mapping[str, Any]) -> Setup:
             raise ProtocolError(f"{key}.position_m", None, "is required (or give [arrangement] positions)")
         trap = raw["trap_hz"]
         trap = (float(trap),) * 3 if isinstance(trap, (int, float)) else tuple(trap)
-        init = dict(raw.get("initial", {}))
-        for vec in ("displacement_m", "velocity_m_s", "squeeze_r", "squeeze_angle_rad"):
-            if isinstance(init.get(vec), (list, tuple)):
-                init[vec] = tuple(init[vec])
+        initial = initial_state_from_table(raw.get("initial", {}), key)
         try:
-            initial = InitialState(**init)
             channels = BodyChannels(**dict(raw.get("channels", {})))
         except ProtocolError as exc:  # name the body the offending table belongs to
             raise ProtocolError(f"{key}.{exc.key}", exc.value, exc.allowed) from None

@@ -8,28 +8,32 @@ t = 0. Each point's model and open-system terms come from gqsim.oscillators itse
 model -> channels, the same code as ``gqsim.simulate``); only the evolution and the measures are
 batched:
 
-* one Van Loan block exponential per point for the step propagator (Theorem 1 of
+* points that differ only in keys of the initial covariance (squeezing, its angle, the initial
+  occupation or temperature; :func:`covariance_only`) share one model build and one propagator,
+  and get their own initial covariance from the function ``initial_moments`` uses;
+* one Van Loan block exponential per distinct model for the step propagator (Theorem 1 of
   [VanLoan1978]): expm([[-A, D], [0, A^T]] dt) gives Phi = e^{A dt} and Q, evaluated for all
-  points together by :func:`stacked_expm`; then sigma_{k+1} = Phi sigma_k Phi^T + Q
-  for all points together (A = Omega H + A_open, scaled units, vacuum sigma = I);
-* the log-negativity of all (point, time) covariances in one stacked call of
-  gqsim.oscillators.measures.log_negativity (symplectic eigenvalues of the partial transpose,
-  Eq. (16) of [VidalWerner2002] with Eq. (3) of [Simon2000]). The invariant formula
-  nu~^2 = (D~ -+ sqrt(D~^2 - 4 det sigma))/2 is not used: near product states the discriminant
-  cancels and E_N would carry errors of sqrt(eps) ~ 1e-8, above the weak-coupling signal;
-* the smallest eigenvalue of sigma~ + i Omega (Eq. (8) of [Simon2000]) for min_pt_eigenvalue,
-  as the one-by-one route reports it.
+  models together by :func:`stacked_expm` (A = Omega H + A_open, scaled units, vacuum sigma = I);
+* the recursion sigma_{k+1} = Phi sigma_k Phi^T + Q, the log-negativity at every grid time
+  (Eq. (16) of [VidalWerner2002]) and the smallest eigenvalue of sigma~ + i Omega over t > 0
+  (Eq. (8) of [Simon2000]) in one compiled pass, :func:`gqsim.sweeps.gaussian_kernel.propagate_and_measure`,
+  whose numpy reference (gqsim.oscillators.measures on the stacked covariances) the tests compare.
+
+The per-point model build (~0.3-0.5 ms of Python) bounds maps in which every point has its own
+model; ``benchmarks/bench_sweep_fast_path.py`` measures both kinds of map.
 """
 
 from __future__ import annotations
+
+from dataclasses import dataclass
 
 import numpy as np
 from scipy.linalg import expm
 
 from gqsim.errors import GqsimError
-from gqsim.sweeps.spec import CERTIFICATION_FIGURES, set_path
+from gqsim.sweeps.spec import CERTIFICATION_FIGURES, set_path, split_path
 
-__all__ = ["gaussian_support", "evaluate_gaussian_points", "stacked_expm"]
+__all__ = ["gaussian_support", "evaluate_gaussian_points", "stacked_expm", "covariance_only"]
 
 
 def gaussian_support(spec) -> tuple[bool, str]:
@@ -81,7 +85,30 @@ def stacked_expm(matrices: np.ndarray) -> np.ndarray:
     return out
 
 
-def _model_of(base_data: dict, values: dict):
+#: keys of a body's ``initial`` table that change the initial covariance and nothing else: points
+#: that differ only in these share one model (drift, diffusion, propagator)
+_COVARIANCE_KEYS = ("squeeze_r", "squeeze_angle_rad", "occupation", "temperature_k")
+
+
+def covariance_only(path: str) -> bool:
+    """Whether the sweep key ``path`` changes only the initial covariance (not the model)."""
+    tokens = split_path(path)
+    return len(tokens) >= 4 and tokens[0] == "bodies" and tokens[2] == "initial" and tokens[3] in _COVARIANCE_KEYS
+
+
+@dataclass(frozen=True)
+class _Dynamics:
+    """One point's model in the form the stacked propagation needs (scaled units)."""
+
+    model: object
+    drift: np.ndarray
+    diffusion: np.ndarray
+    tau: float
+    cov0: np.ndarray
+    times: np.ndarray
+
+
+def _dynamics_of(base_data: dict, values: dict) -> _Dynamics:
     from gqsim.oscillators.channels import build_channels
     from gqsim.oscillators.model import build_model, initial_moments, symplectic_form
     from gqsim.oscillators.setup import setup_from_protocol
@@ -99,7 +126,7 @@ def _model_of(base_data: dict, values: dict):
         raise ValueError("non-uniform grid")
     drift = symplectic_form(2) @ model.stages[0].hamiltonian + dynamics.drift
     tau = (steps[0] if steps.size else 0.0) * model.scales.omega_unit_rad_s
-    return drift, dynamics.diffusion, tau, initial_moments(model)[1], times
+    return _Dynamics(model, drift, dynamics.diffusion, tau, initial_moments(model)[1], times)
 
 
 def _copy(node):
@@ -110,66 +137,102 @@ def _copy(node):
     return node
 
 
+def _initial_states(base_data: dict, values: dict) -> tuple:
+    """Each body's InitialState with the covariance-only sweep values applied (GqsimError if invalid)."""
+    from gqsim.oscillators.setup import initial_state_from_table
+
+    data = {"bodies": _copy(base_data["bodies"])}
+    for path, value in values.items():
+        set_path(data, path, value.item() if isinstance(value, np.generic) else value)
+    return tuple(initial_state_from_table(body.get("initial", {}), f"bodies[{i}]")
+                 for i, body in enumerate(data["bodies"]))
+
+
 def evaluate_gaussian_points(spec, points: np.ndarray) -> tuple[dict, np.ndarray]:
     """Figures of the flat grid indices ``points`` (n,) and a (n,) mask of points left to the
-    one-by-one route (models that fail to build, or fall outside the batched scope)."""
-    from gqsim.oscillators.measures import log_negativity, simon_min_eigenvalue
+    one-by-one route (models that fail to build, or fall outside the batched scope).
+
+    Points that differ only in covariance-only keys (:func:`covariance_only`) share one model
+    build and one propagator; their initial covariances are set per point with the same
+    :func:`gqsim.oscillators.model.squeezed_thermal_covariance` that ``initial_moments`` uses.
+    """
+    from gqsim.oscillators.model import squeezed_thermal_covariance
     from gqsim.oscillators.run import EN_FLOOR
     from gqsim.sweeps.batched import first_near_max
+    from gqsim.sweeps.gaussian_kernel import propagate_and_measure
 
     base = spec.base.to_dict()
     n = points.size
-    single = np.zeros(n, dtype=bool)
-    pieces = []
-    for j, p in enumerate(points):
-        try:
-            pieces.append(_model_of(base, spec.point_values(p)))
-        except (GqsimError, ValueError):
-            single[j] = True
-            pieces.append(None)
-    ok = np.flatnonzero(~single)
     figures = {"max_log_negativity": np.full(n, np.nan), "time_of_max_s": np.full(n, np.nan),
                "entangled": np.full(n, -1, dtype=np.int8), "min_pt_eigenvalue": np.full(n, np.nan),
                "entangling_rate_rad_s": np.full(n, np.nan), "dephasing_threshold_per_s": np.full(n, np.nan),
                "dominant_noise": np.full(n, -1, dtype=np.int8)}
+    initial_paths = {a.path for a in spec.axes if covariance_only(a.path)}
+    single = np.zeros(n, dtype=bool)
+    groups: dict[tuple, int] = {}
+    dynamics: list[_Dynamics] = []
+    group_of = np.zeros(n, dtype=np.intp)
+    states_cache: dict[tuple, tuple] = {}
+    mode_params = np.zeros((n, 2, 3))  # (occupation, r, angle) of each body's one mode
+    for j, p in enumerate(points):
+        values = spec.point_values(p)
+        key = tuple(v for path, v in values.items() if path not in initial_paths)
+        g = groups.get(key)
+        if g is None:
+            try:
+                dyn = _dynamics_of(base, values)
+            except (GqsimError, ValueError):
+                single[j] = True
+                continue  # retried by the group's next point: the failure may be this point's initial state
+            groups[key] = g = len(dynamics)
+            dynamics.append(dyn)
+        group_of[j] = g
+        if initial_paths:
+            ikey = tuple(v for path, v in values.items() if path in initial_paths)
+            states = states_cache.get(ikey)
+            if states is None:
+                try:
+                    states = _initial_states(base, {k: v for k, v in values.items() if k in initial_paths})
+                except GqsimError:
+                    single[j] = True
+                    continue
+                states_cache[ikey] = states
+            omega = dynamics[g].model.scales.omega_ref_rad_s
+            for b, init in enumerate(states):
+                mode_params[j, b] = (init.occupation_at(float(omega[b])), *init.squeezing(0))
+    ok = np.flatnonzero(~single)
     if ok.size == 0:
         return figures, single
-    sizes = {pieces[j][4].size for j in ok}
-    if len(sizes) != 1:  # differing grid lengths cannot share one stack: leave them one by one
+    if len({dyn.times.size for dyn in dynamics}) != 1:  # differing grid lengths cannot share one stack
         single[ok] = True
         return figures, single
-    drift = np.stack([pieces[j][0] for j in ok])
-    diffusion = np.stack([pieces[j][1] for j in ok])
-    tau = np.array([pieces[j][2] for j in ok])
-    cov = np.stack([pieces[j][3] for j in ok])
-    times = np.stack([pieces[j][4] for j in ok])
-    m = drift.shape[-1]
-    block = np.zeros((ok.size, 2 * m, 2 * m))
+    m = 4
+    drift = np.stack([dyn.drift for dyn in dynamics])
+    block = np.zeros((len(dynamics), 2 * m, 2 * m))
     block[:, :m, :m] = -drift
-    block[:, :m, m:] = diffusion
+    block[:, :m, m:] = np.stack([dyn.diffusion for dyn in dynamics])
     block[:, m:, m:] = np.swapaxes(drift, 1, 2)
-    f = stacked_expm(block * tau[:, None, None])
+    f = stacked_expm(block * np.array([dyn.tau for dyn in dynamics])[:, None, None])
     phi = np.swapaxes(f[:, m:, m:], 1, 2)
     q = phi @ f[:, :m, m:]
     q = 0.5 * (q + np.swapaxes(q, 1, 2))
-    phi_t = np.swapaxes(phi, 1, 2)
-    covs = np.empty((ok.size, times.shape[1], m, m))
-    covs[:, 0] = cov
-    for k in range(1, times.shape[1]):
-        cov = phi @ cov @ phi_t + q
-        cov = 0.5 * (cov + np.swapaxes(cov, 1, 2))
-        covs[:, k] = cov
-    if not np.all(np.isfinite(covs)):
+    groups_ok = group_of[ok]
+    cov0 = np.stack([dynamics[g].cov0 for g in groups_ok])
+    if initial_paths:
+        for b in range(2):
+            cov0[:, 2 * b:2 * b + 2, 2 * b:2 * b + 2] = squeezed_thermal_covariance(*mode_params[ok, b].T)
+    times = np.stack([dyn.times for dyn in dynamics])[groups_ok]
+    want_min = "min_pt_eigenvalue" in spec.figures
+    en, lam = propagate_and_measure(np.ascontiguousarray(phi[groups_ok]), np.ascontiguousarray(q[groups_ok]),
+                                    cov0, times.shape[1], want_min)
+    if not (np.all(np.isfinite(en)) and (not want_min or np.all(np.isfinite(lam)))):
         single[ok] = True  # let the engine itself report the overflow
         return figures, single
-    flat = covs.reshape(-1, m, m)
-    en = log_negativity(flat, [1]).reshape(times.shape)
     k = first_near_max(en)
     rows = np.arange(ok.size)
     figures["max_log_negativity"][ok] = en[rows, k]
     figures["time_of_max_s"][ok] = times[rows, k]
     figures["entangled"][ok] = np.any(en > EN_FLOOR, axis=1).astype(np.int8)
-    if "min_pt_eigenvalue" in spec.figures:
-        lam = simon_min_eigenvalue(flat, [1]).reshape(en.shape)
-        figures["min_pt_eigenvalue"][ok] = np.where(times > 0, lam, np.inf).min(axis=1)
+    if want_min:
+        figures["min_pt_eigenvalue"][ok] = lam
     return figures, single
