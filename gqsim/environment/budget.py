@@ -491,14 +491,15 @@ def rule_of_thumb_limit(data: Mapping[str, Any], knob: str, *, source: str = "<m
 _AXIS_VECTORS = {"x": np.array([1.0, 0.0, 0.0]), "y": np.array([0.0, 1.0, 0.0]), "z": np.array([0.0, 0.0, 1.0])}
 
 
-def _oscillator_bodies(protocol: Protocol, env_table):
+def _oscillator_bodies(data: Mapping[str, Any], env_table):
+    """(setup, environment, one sphere per body) of an oscillators protocol mapping."""
     from gqsim.oscillators.setup import setup_from_protocol
 
-    setup = setup_from_protocol(protocol.data)
+    setup = setup_from_protocol(data)
     env = environment_from_table(env_table) if env_table is not None else None
     spheres = []
     for index, body in enumerate(setup.bodies):
-        entry = protocol.data["bodies"][index]
+        entry = data["bodies"][index]
         spheres.append(None if env is None else sphere_from_body_table(
             {**entry, "label": body.label}, mass_kg=body.mass_kg, radius_m=body.radius_m, key=f"bodies[{index}]"))
     return setup, env, spheres
@@ -542,7 +543,7 @@ def oscillator_noise_budget(data: Mapping[str, Any], *, source: str = "<memory>"
     from gqsim.environment.sources import oscillator_terms
 
     protocol, table = split_environment(data, source=source)
-    setup, env, spheres = _oscillator_bodies(protocol, table)
+    setup, env, spheres = _oscillator_bodies(protocol.data, table)
     lines: list[BudgetLine] = []
     notes: list[str] = []
     for body, sphere in zip(setup.bodies, spheres):

@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import itertools
 import math
+from typing import Any, Mapping
 
 import numpy as np
 
@@ -59,26 +60,29 @@ def build(protocol) -> OscillatorModel:
     proto = _protocol(protocol)
     if proto.family != "oscillators":
         raise ProtocolError("family", proto.family, "gqsim.oscillators builds only family = \"oscillators\"")
-    model = build_model(setup_from_protocol(_with_environment(proto)))
+    model = build_model(setup_from_protocol(with_environment(proto.data)))
     build_channels(model)  # validates the channel numbers too
     return model
 
 
-def _with_environment(proto: Protocol):
-    """The protocol content with an ``[environment]`` table folded into each body's channels
+def with_environment(data: Mapping[str, Any]) -> Mapping[str, Any]:
+    """The protocol mapping with an ``[environment]`` table folded into each body's channels
     (gas as Caldeira-Leggett damping at the gas temperature; photon, laser and extra
-    localisation added to ``localisation_per_m2_s``; see gqsim.environment.budget)."""
-    if proto.data.get("environment") is None:
-        return proto.data
+    localisation added to ``localisation_per_m2_s``; see gqsim.environment.budget). ``data`` is
+    not modified; without an environment it is returned as is. Every route from a protocol to
+    an oscillator model (``build`` here, the batched sweep route) goes through this."""
+    if data.get("environment") is None:
+        return data
     from gqsim.environment.budget import _oscillator_bodies, oscillator_channel_table
 
-    data = proto.to_dict()
-    table = data.pop("environment")
-    setup, env, spheres = _oscillator_bodies(proto, table)
+    out = dict(data)
+    table = out.pop("environment")
+    out["bodies"] = [dict(entry) for entry in data["bodies"]]
+    setup, env, spheres = _oscillator_bodies(data, table)
     for index, (body, sphere) in enumerate(zip(setup.bodies, spheres)):
-        entry = data["bodies"][index]
+        entry = out["bodies"][index]
         entry["channels"] = oscillator_channel_table(env, sphere, body, entry.get("channels", {}), f"bodies[{index}]")
-    return data
+    return out
 
 
 def simulate(protocol, *, engine: str | None = None) -> Result:

@@ -4,8 +4,8 @@ grid points at once.
 Scope (checked by :func:`gaussian_support`; anything else runs point by point): family
 ``oscillators``, two bodies with one mode each, Gaussian initial states, one stage, no
 conditional measurement, the quadratic model (``anharmonic_order`` <= 2), a time grid starting at
-t = 0. Each point's model and open-system terms come from gqsim.oscillators itself (setup ->
-model -> channels, the same code as ``gqsim.simulate``); only the evolution and the measures are
+t = 0. Each point's model and open-system terms come from gqsim.oscillators itself (environment
+folded into the channels -> setup -> model -> channels, the same code as ``gqsim.simulate``); only the evolution and the measures are
 batched:
 
 * points that differ only in keys of the initial covariance (squeezing, its angle, the initial
@@ -111,12 +111,13 @@ class _Dynamics:
 def _dynamics_of(base_data: dict, values: dict) -> _Dynamics:
     from gqsim.oscillators.channels import build_channels
     from gqsim.oscillators.model import build_model, initial_moments, symplectic_form
+    from gqsim.oscillators.run import with_environment
     from gqsim.oscillators.setup import setup_from_protocol
 
     data = _copy(base_data)
     for path, value in values.items():
         set_path(data, path, value.item() if isinstance(value, np.generic) else value)
-    model = build_model(setup_from_protocol(data))
+    model = build_model(setup_from_protocol(with_environment(data)))
     dynamics = build_channels(model)
     if model.anharmonic or not model.is_gaussian or np.any(dynamics.measurement):
         raise ValueError("outside the batched Gaussian scope")
