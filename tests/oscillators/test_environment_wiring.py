@@ -18,7 +18,7 @@ def test_run_equals_the_protocol_with_the_channels_written_out():
     direct = gqsim.simulate(proto)
     data = proto.to_dict()
     table = data.pop("environment")
-    setup, env, spheres = _oscillator_bodies(gqsim.parse_protocol(data), table)
+    setup, env, spheres = _oscillator_bodies(gqsim.parse_protocol(data).data, table)
     for index, (body, sphere) in enumerate(zip(setup.bodies, spheres)):
         entry = data["bodies"][index]
         entry["channels"] = oscillator_channel_table(env, sphere, body, entry.get("channels", {}), "b")
