@@ -74,13 +74,14 @@ def lindblad_moments(jumps: np.ndarray, n_modes: int) -> tuple[np.ndarray, np.nd
     """Drift addition Omega Im(C^dag C) and diffusion 2 Omega Re(C^dag C) Omega^T of linear jumps.
 
     Eq. (4.x) of [Serafini2017] / Eq. (14) of [Genoni2016] (equation numbers from memory), in
-    the convention sigma_jk = <{dr_j, dr_k}>.
+    the convention sigma_jk = <{dr_j, dr_k}>. ``jumps`` is (n_jumps, 2n), or a stack
+    (..., n_jumps, 2n) giving stacked results (the batched sweep route).
     """
     omega = symplectic_form(n_modes)
-    if jumps.size == 0:
-        z = np.zeros((2 * n_modes, 2 * n_modes))
+    if jumps.shape[-2] == 0:
+        z = np.zeros(jumps.shape[:-2] + (2 * n_modes, 2 * n_modes))
         return z, z.copy()
-    gram = jumps.conj().T @ jumps
+    gram = np.swapaxes(jumps.conj(), -1, -2) @ jumps
     return omega @ gram.imag, 2.0 * omega @ gram.real @ omega.T
 
 

@@ -33,7 +33,8 @@ from scipy.linalg import expm
 from gqsim.errors import GqsimError
 from gqsim.sweeps.spec import CERTIFICATION_FIGURES, set_path, split_path
 
-__all__ = ["gaussian_support", "evaluate_gaussian_points", "stacked_expm", "covariance_only"]
+__all__ = ["gaussian_support", "evaluate_gaussian_points", "stacked_expm", "covariance_only", "axis_kind",
+           "array_scope", "array_dynamics"]
 
 
 def gaussian_support(spec) -> tuple[bool, str]:
@@ -149,12 +150,176 @@ def _initial_states(base_data: dict, values: dict) -> tuple:
                  for i, body in enumerate(data["bodies"]))
 
 
+# ----------------------------------------------------------------------------- array route
+
+#: keys after ``bodies[i]`` / ``bodies[*]`` that the array route applies to a group's model
+_ARRAY_BODY_KEYS = (("mass_kg",), ("trap_hz",), ("channels", "heating_phonons_per_s"),
+                    ("channels", "localisation_per_m2_s"), ("channels", "damping_rate_per_s"))
+_RATE_KEYS = ("heating_phonons_per_s", "localisation_per_m2_s", "damping_rate_per_s")
+
+
+def axis_kind(path: str) -> str:
+    """How the batched route treats the sweep key ``path``.
+
+    ``"initial"``: changes only the initial covariance (:func:`covariance_only`);
+    ``"array"``: a body's mass, trap frequency, position component or channel rate (heating,
+    localisation, damping), or the stage duration, evaluated for all points of a model group by
+    :func:`array_dynamics` when the group's model is in its scope; ``"model"``: anything else
+    (points with different values build their own models).
+    """
+    if covariance_only(path):
+        return "initial"
+    tokens = split_path(path)
+    if len(tokens) == 3 and tokens[0] == "stages" and tokens[1] in (0, "*") and tokens[2] == "duration_s":
+        return "array"
+    if len(tokens) >= 3 and tokens[0] == "bodies":
+        rest = tuple(tokens[2:])
+        if rest in _ARRAY_BODY_KEYS or (len(rest) == 2 and rest[0] == "position_m" and isinstance(rest[1], int)):
+            return "array"
+    return "model"
+
+
+def array_scope(data: dict, model) -> bool:
+    """Whether :func:`array_dynamics` reproduces the model of protocol mapping ``data`` for any
+    values of the array keys: Newtonian gravity alone, no environment table (its rates depend on
+    mass and radius), positions in the bodies, stage traps equal to the preparation traps, no
+    measurement channel, masses given directly."""
+    setup = model.setup
+    if setup.interactions is not None or tuple(setup.potentials) != ("gravity",):
+        return False
+    if data.get("environment") is not None or data.get("arrangement") is not None:
+        return False
+    stage = data["stages"][0]
+    if "trap_hz" in stage or stage.get("inverted_modes"):
+        return False
+    return all("mass_kg" in raw and body.channels.measurement_per_m2_s == 0
+               for raw, body in zip(data["bodies"], setup.bodies))
+
+
+def array_dynamics(model, overrides: dict, count: int):
+    """Drift, diffusion, step, grid, reference frequencies and validity of ``count`` points that
+    share ``model`` except for array-key values ``overrides`` (path -> (count,) values).
+
+    The array forms of the scalar stages, for two bodies with one mode each in
+    :func:`array_scope`: Scales.for_bodies (ell = sqrt(hbar/(m omega))), the gravity Hessian
+    (potentials.pair_hessian_at of unit masses times m_a m_b, U = -G m_a m_b / r),
+    stiffness_matrix's mode blocks, _stage_model's Hamiltonian, build_channels' jump rows
+    (damping, heating, localisation, Caldeira-Leggett) through channels.lindblad_moments and
+    setup's time grid. The tests pin every key against the scalar route (1e-12). Points whose
+    values the scalar stages would refuse (non-positive mass or trap, overlapping bodies, negative
+    stiffness, brownian damping without a bath temperature, ...) are marked invalid and left to
+    the one-by-one route, which reports its own error.
+    """
+    from scipy.constants import hbar, k as k_B
+
+    from gqsim.oscillators.channels import lindblad_moments
+    from gqsim.oscillators.model import symplectic_form
+    from gqsim.oscillators.setup import AXES
+    from gqsim.potentials import NewtonianGravity, pair_hessian_at
+
+    setup = model.setup
+    bodies = setup.bodies
+    axes = [AXES.index(b.modes[0]) for b in bodies]
+    mass = np.tile(np.array([b.mass_kg for b in bodies], dtype=float), (count, 1))
+    trap = np.tile(np.array([b.trap_hz[a] for b, a in zip(bodies, axes)], dtype=float), (count, 1))
+    pos = np.tile(np.array([b.position_m for b in bodies], dtype=float), (count, 1, 1))
+    rates = {key: np.tile(np.array([getattr(b.channels, key) for b in bodies], dtype=float), (count, 1))
+             for key in _RATE_KEYS}
+    duration = np.full(count, float(setup.stages[0].duration_s))
+    for path, values in overrides.items():
+        values = np.asarray(values, dtype=float)
+        tokens = split_path(path)
+        if tokens[0] == "stages":
+            duration[:] = values
+            continue
+        which = [0, 1] if tokens[1] == "*" else [tokens[1]]
+        rest = tokens[2:]
+        target = {"mass_kg": mass, "trap_hz": trap}.get(rest[0])
+        if target is not None:
+            target[:, which] = values[:, None]
+        elif rest[0] == "position_m":
+            pos[:, which, rest[1]] = values[:, None]
+        else:
+            rates[rest[1]][:, which] = values[:, None]
+    sep = pos[:, 1] - pos[:, 0]
+    d = np.linalg.norm(sep, axis=1)
+    reach = sum(b.radius_m or 0.0 for b in bodies)
+    valid = (np.all(np.isfinite(mass) & (mass > 0), axis=1) & np.all(np.isfinite(trap) & (trap > 0), axis=1)
+             & np.isfinite(duration) & (duration > 0) & np.isfinite(d) & (d > 0) & (d > reach))
+    for key, r in rates.items():
+        valid &= np.all(np.isfinite(r) & (r >= 0), axis=1)
+    for b, body in enumerate(bodies):
+        if body.channels.damping_model == "brownian" and body.channels.bath_temperature_k is None:
+            valid &= rates["damping_rate_per_s"][:, b] == 0
+    # invalid rows get the model's own values so that no arithmetic below warns; they are dropped
+    bad = ~valid
+    mass[bad] = [b.mass_kg for b in bodies]
+    trap[bad] = [b.trap_hz[a] for b, a in zip(bodies, axes)]
+    sep[bad] = np.subtract(bodies[1].position_m, bodies[0].position_m)
+    duration[bad] = setup.stages[0].duration_s
+    for key in _RATE_KEYS:
+        rates[key][bad] = 0.0
+
+    omega_ref = 2.0 * np.pi * trap
+    omega_unit = omega_ref.max(axis=1)
+    ell = np.sqrt(hbar / (mass * omega_ref))
+    hess = pair_hessian_at(NewtonianGravity(mass_a_kg=1.0, mass_b_kg=1.0), sep) * (mass[:, 0] * mass[:, 1])[:, None, None]
+    a, b = axes
+    total = np.empty((count, 2, 2))
+    total[:, 0, 0] = mass[:, 0] * omega_ref[:, 0] ** 2 + hess[:, a, a]
+    total[:, 1, 1] = mass[:, 1] * omega_ref[:, 1] ** 2 + hess[:, b, b]
+    total[:, 0, 1] = -hess[:, a, b]
+    total[:, 1, 0] = -hess[:, b, a]
+    valid &= (total[:, 0, 0] > 0) & (total[:, 1, 1] > 0)
+    ham = np.zeros((count, 4, 4))
+    ham[:, 0::2, 0::2] = total * (ell[:, :, None] * ell[:, None, :]) / (hbar * omega_unit)[:, None, None]
+    ham[:, 1, 1] = omega_ref[:, 0] / omega_unit
+    ham[:, 3, 3] = omega_ref[:, 1] / omega_unit
+
+    # jump rows (1, i) sqrt(q+), (1, -i) sqrt(q-), (1, 0) sqrt(qx) per mode: the rows of
+    # build_channels with equal shapes merged (Gram matrices add)
+    q_plus, q_minus, q_x = np.zeros((count, 2)), np.zeros((count, 2)), np.zeros((count, 2))
+    brownian = np.zeros((count, 2))
+    for i, body in enumerate(bodies):
+        ch = body.channels
+        gamma = rates["damping_rate_per_s"][:, i] / omega_unit
+        if ch.damping_model == "quantum_optical":
+            nb = np.array([ch.bath_occupation_at(float(w)) for w in omega_ref[:, i]]) if np.any(gamma > 0) else 0.0
+            q_plus[:, i] += gamma * (nb + 1) / 2
+            q_minus[:, i] += gamma * nb / 2
+        else:
+            brownian[:, i] = gamma
+            lam = mass[:, i] * rates["damping_rate_per_s"][:, i] * k_B * (ch.bath_temperature_k or 0.0) / hbar**2
+            q_x[:, i] += 2 * lam * ell[:, i] ** 2 / omega_unit
+        q_x[:, i] += 2 * rates["localisation_per_m2_s"][:, i] * ell[:, i] ** 2 / omega_unit
+        heat = rates["heating_phonons_per_s"][:, i] / omega_unit
+        q_plus[:, i] += heat / 2
+        q_minus[:, i] += heat / 2
+    rows = np.zeros((count, 6, 4), dtype=complex)
+    for i in range(2):
+        rows[:, 3 * i, 2 * i], rows[:, 3 * i, 2 * i + 1] = np.sqrt(q_plus[:, i]), 1j * np.sqrt(q_plus[:, i])
+        rows[:, 3 * i + 1, 2 * i], rows[:, 3 * i + 1, 2 * i + 1] = np.sqrt(q_minus[:, i]), -1j * np.sqrt(q_minus[:, i])
+        rows[:, 3 * i + 2, 2 * i] = np.sqrt(q_x[:, i])
+    open_drift, diffusion = lindblad_moments(rows, 2)
+    open_drift[:, 1, 1] -= brownian[:, 0]
+    open_drift[:, 3, 3] -= brownian[:, 1]
+    drift = symplectic_form(2) @ ham + open_drift
+    points = setup.times_s.size
+    times = np.linspace(0.0, duration, points, axis=-1)
+    tau = (times[:, 1] - times[:, 0]) * omega_unit if points > 1 else np.zeros(count)
+    return drift, diffusion, tau, times, omega_ref, valid
+
+
+# ----------------------------------------------------------------------------- evaluation
+
 def evaluate_gaussian_points(spec, points: np.ndarray) -> tuple[dict, np.ndarray]:
     """Figures of the flat grid indices ``points`` (n,) and a (n,) mask of points left to the
     one-by-one route (models that fail to build, or fall outside the batched scope).
 
-    Points that differ only in covariance-only keys (:func:`covariance_only`) share one model
-    build and one propagator; their initial covariances are set per point with the same
+    Points are grouped by their "model" keys (:func:`axis_kind`). A group whose model is in
+    :func:`array_scope` gets the array keys of all its points applied by :func:`array_dynamics`
+    (no build per point); otherwise each distinct set of non-initial values builds its own model.
+    Initial covariances are set per point with the same
     :func:`gqsim.oscillators.model.squeezed_thermal_covariance` that ``initial_moments`` uses.
     """
     from gqsim.oscillators.model import squeezed_thermal_covariance
@@ -168,72 +333,113 @@ def evaluate_gaussian_points(spec, points: np.ndarray) -> tuple[dict, np.ndarray
                "entangled": np.full(n, -1, dtype=np.int8), "min_pt_eigenvalue": np.full(n, np.nan),
                "entangling_rate_rad_s": np.full(n, np.nan), "dephasing_threshold_per_s": np.full(n, np.nan),
                "dominant_noise": np.full(n, -1, dtype=np.int8)}
-    initial_paths = {a.path for a in spec.axes if covariance_only(a.path)}
+    kinds = [axis_kind(a.path) for a in spec.axes]
+    index = np.unravel_index(points, spec.shape) if spec.axes else ()
+    axis_values = [np.asarray(a.values, dtype=object)[i] for a, i in zip(spec.axes, index)]
     single = np.zeros(n, dtype=bool)
-    groups: dict[tuple, int] = {}
-    dynamics: list[_Dynamics] = []
-    group_of = np.zeros(n, dtype=np.intp)
-    states_cache: dict[tuple, tuple] = {}
-    mode_params = np.zeros((n, 2, 3))  # (occupation, r, angle) of each body's one mode
-    for j, p in enumerate(points):
-        values = spec.point_values(p)
-        key = tuple(v for path, v in values.items() if path not in initial_paths)
-        g = groups.get(key)
-        if g is None:
-            try:
-                dyn = _dynamics_of(base, values)
-            except (GqsimError, ValueError):
-                single[j] = True
-                continue  # retried by the group's next point: the failure may be this point's initial state
-            groups[key] = g = len(dynamics)
-            dynamics.append(dyn)
-        group_of[j] = g
-        if initial_paths:
-            ikey = tuple(v for path, v in values.items() if path in initial_paths)
-            states = states_cache.get(ikey)
-            if states is None:
+    drift = np.zeros((n, 4, 4))
+    diffusion = np.zeros((n, 4, 4))
+    tau = np.zeros(n)
+    omega_ref = np.zeros((n, 2))
+    times: list = [None] * n
+    initial_of: list = [None] * n  # tuple of InitialState per body, or the model's own (None)
+    model_of: list = [None] * n
+
+    def values_of(j, wanted):
+        return {a.path: axis_values[k][j] for k, a in enumerate(spec.axes) if kinds[k] in wanted}
+
+    groups: dict[tuple, list[int]] = {}
+    for j in range(n):
+        key = tuple(axis_values[k][j] for k in range(len(kinds)) if kinds[k] == "model")
+        groups.setdefault(key, []).append(j)
+    built: dict[tuple, _Dynamics] = {}
+    for members in groups.values():
+        members = np.asarray(members)
+        group_values = values_of(members[0], ("model",))
+        array_axes = [k for k, kind in enumerate(kinds) if kind == "array"]
+        try:
+            group_dyn = _dynamics_of(base, group_values)
+        except (GqsimError, ValueError):
+            group_dyn = None
+        if group_dyn is not None and (not array_axes or array_scope(_applied(base, group_values), group_dyn.model)):
+            overrides = {spec.axes[k].path: np.array([axis_values[k][j] for j in members], dtype=float)
+                         for k in array_axes}
+            d, q, t, grid, w, valid = array_dynamics(group_dyn.model, overrides, members.size)
+            drift[members], diffusion[members], tau[members], omega_ref[members] = d, q, t, w
+            for row, j in enumerate(members):
+                times[j] = grid[row]
+                model_of[j] = group_dyn.model
+            single[members[~valid]] = True
+            continue
+        for j in members:  # a model build per distinct non-initial value set
+            key = tuple(v for v in values_of(j, ("model", "array")).values())
+            dyn = built.get(key)
+            if dyn is None:
                 try:
-                    states = _initial_states(base, {k: v for k, v in values.items() if k in initial_paths})
-                except GqsimError:
-                    single[j] = True
+                    dyn = _dynamics_of(base, values_of(j, ("model", "array", "initial")))
+                except (GqsimError, ValueError):
+                    single[j] = True  # the failure may be this point's initial state: not cached
                     continue
-                states_cache[ikey] = states
-            omega = dynamics[g].model.scales.omega_ref_rad_s
-            for b, init in enumerate(states):
-                mode_params[j, b] = (init.occupation_at(float(omega[b])), *init.squeezing(0))
+                built[key] = dyn
+            drift[j], diffusion[j], tau[j] = dyn.drift, dyn.diffusion, dyn.tau
+            omega_ref[j] = dyn.model.scales.omega_ref_rad_s
+            times[j], model_of[j] = dyn.times, dyn.model
+    # initial covariances: every point's own occupation (at its own trap frequency), r and angle
+    initial_axes = any(kind == "initial" for kind in kinds)
+    states_cache: dict[tuple, tuple] = {}
+    mode_params = np.zeros((n, 2, 3))
+    for j in np.flatnonzero(~single):
+        states = tuple(body.initial for body in model_of[j].setup.bodies)
+        if initial_axes:
+            ivalues = values_of(j, ("initial",))
+            ikey = tuple(ivalues.values())
+            if ikey not in states_cache:
+                try:
+                    states_cache[ikey] = _initial_states(base, ivalues)
+                except GqsimError:
+                    states_cache[ikey] = None
+            if states_cache[ikey] is None:
+                single[j] = True
+                continue
+            states = states_cache[ikey]
+        for b, init in enumerate(states):
+            mode_params[j, b] = (init.occupation_at(float(omega_ref[j, b])), *init.squeezing(0))
     ok = np.flatnonzero(~single)
     if ok.size == 0:
         return figures, single
-    if len({dyn.times.size for dyn in dynamics}) != 1:  # differing grid lengths cannot share one stack
+    if len({times[j].size for j in ok}) != 1:  # differing grid lengths cannot share one stack
         single[ok] = True
         return figures, single
     m = 4
-    drift = np.stack([dyn.drift for dyn in dynamics])
-    block = np.zeros((len(dynamics), 2 * m, 2 * m))
-    block[:, :m, :m] = -drift
-    block[:, :m, m:] = np.stack([dyn.diffusion for dyn in dynamics])
-    block[:, m:, m:] = np.swapaxes(drift, 1, 2)
-    f = stacked_expm(block * np.array([dyn.tau for dyn in dynamics])[:, None, None])
-    phi = np.swapaxes(f[:, m:, m:], 1, 2)
+    block = np.zeros((ok.size, 2 * m, 2 * m))
+    block[:, :m, :m] = -drift[ok]
+    block[:, :m, m:] = diffusion[ok]
+    block[:, m:, m:] = np.swapaxes(drift[ok], 1, 2)
+    f = stacked_expm(block * tau[ok][:, None, None])
+    phi = np.ascontiguousarray(np.swapaxes(f[:, m:, m:], 1, 2))
     q = phi @ f[:, :m, m:]
-    q = 0.5 * (q + np.swapaxes(q, 1, 2))
-    groups_ok = group_of[ok]
-    cov0 = np.stack([dynamics[g].cov0 for g in groups_ok])
-    if initial_paths:
-        for b in range(2):
-            cov0[:, 2 * b:2 * b + 2, 2 * b:2 * b + 2] = squeezed_thermal_covariance(*mode_params[ok, b].T)
-    times = np.stack([dyn.times for dyn in dynamics])[groups_ok]
+    q = np.ascontiguousarray(0.5 * (q + np.swapaxes(q, 1, 2)))
+    cov0 = np.zeros((ok.size, m, m))
+    for b in range(2):
+        cov0[:, 2 * b:2 * b + 2, 2 * b:2 * b + 2] = squeezed_thermal_covariance(*mode_params[ok, b].T)
+    grid = np.stack([times[j] for j in ok])
     want_min = "min_pt_eigenvalue" in spec.figures
-    en, lam = propagate_and_measure(np.ascontiguousarray(phi[groups_ok]), np.ascontiguousarray(q[groups_ok]),
-                                    cov0, times.shape[1], want_min)
+    en, lam = propagate_and_measure(phi, q, cov0, grid.shape[1], want_min)
     if not (np.all(np.isfinite(en)) and (not want_min or np.all(np.isfinite(lam)))):
         single[ok] = True  # let the engine itself report the overflow
         return figures, single
     k = first_near_max(en)
     rows = np.arange(ok.size)
     figures["max_log_negativity"][ok] = en[rows, k]
-    figures["time_of_max_s"][ok] = times[rows, k]
+    figures["time_of_max_s"][ok] = grid[rows, k]
     figures["entangled"][ok] = np.any(en > EN_FLOOR, axis=1).astype(np.int8)
     if want_min:
         figures["min_pt_eigenvalue"][ok] = lam
     return figures, single
+
+
+def _applied(base_data: dict, values: dict) -> dict:
+    data = _copy(base_data)
+    for path, value in values.items():
+        set_path(data, path, value.item() if isinstance(value, np.generic) else value)
+    return data

@@ -135,3 +135,105 @@ def test_batched_route_applies_the_environment_table(tmp_path):
         np.testing.assert_allclose(fast[name].values, slow[name].values, rtol=1e-12, atol=1e-12, err_msg=name)
     en = fast.max_log_negativity.values
     assert en[0] > 0 and np.all(np.diff(en) <= 0) and en[-1] < en[0]
+
+
+def _compare_routes(spec, tmp_path):
+    fast = run_sweep(spec, tmp_path / "fast.zarr", executor="serial")
+    slow = run_sweep(spec, tmp_path / "slow.zarr", executor="serial", route="one_by_one")
+    np.testing.assert_array_equal(fast.status.values, slow.status.values)
+    np.testing.assert_array_equal(fast.message.values, slow.message.values)
+    for name in ("max_log_negativity", "time_of_max_s", "min_pt_eigenvalue"):
+        np.testing.assert_allclose(fast[name].values, slow[name].values, rtol=1e-12, atol=1e-12, err_msg=name)
+    np.testing.assert_array_equal(fast.entangled.values, slow.entangled.values)
+    return fast
+
+
+def test_array_route_keys_equal_simulate(tmp_path):
+    """Mass, position, localisation and damping axes (quantum-optical with a bath temperature on
+    one body, Caldeira-Leggett on the other) go through the array forms of the model and channel
+    stages with no model build per point (gqsim.sweeps.batched_gaussian.array_dynamics); every
+    point equals gqsim.simulate of its own protocol to 1e-12, and a position that makes the
+    spheres overlap fails with simulate's own one-line message."""
+    from gqsim.sweeps.batched_gaussian import array_scope, axis_kind
+
+    data = _pair().to_dict()
+    for body in data["bodies"]:
+        body["radius_m"] = 1e-4
+        body["initial"] = {"kind": "gaussian", "squeeze_r": 0.6, "squeeze_angle_rad": 0.3}
+    data["bodies"][0]["channels"] = {"bath_temperature_k": 1e-9, "localisation_per_m2_s": 1e-3}
+    data["bodies"][1]["channels"] = {"damping_model": "brownian", "bath_temperature_k": 1e-9}
+    data["time_grid"] = {"points": 51}
+    base = parse_protocol(data, source="open pair (test)")
+    axes = [{"path": "bodies[1].mass_kg", "label": "m1", "values": [1e-6, 3e-6]},
+            {"path": "bodies[1].position_m[0]", "label": "x1", "values": [1e-3, 1.5e-4]},
+            {"path": "bodies[0].channels.localisation_per_m2_s", "label": "loc0", "values": [0.0, 1e24]},
+            {"path": "bodies[*].channels.damping_rate_per_s", "label": "gamma", "values": [0.0, 1e-9]},
+            {"path": "bodies[0].trap_hz", "label": "f0", "values": [0.8, 1.3]}]
+    spec = small_sweep(axes, base=base)
+    assert {axis_kind(a["path"]) for a in axes} == {"array"}
+    assert array_scope(base.to_dict(), __import__("gqsim.oscillators.run", fromlist=["build"]).build(base))
+    assert resolve_route(spec) == "batched"
+    fast = _compare_routes(spec, tmp_path)
+    overlap = fast.x1.values < 2e-4
+    assert (fast.status.values[:, overlap] == 2).all() and (fast.status.values[:, ~overlap] == 1).all()
+    assert "overlap" in str(fast.message.values[0, 1, 0, 0, 0])
+    assert 0 < (fast.entangled.values == 1).sum() < (fast.status.values == 1).sum()
+
+
+def test_array_route_refuses_what_the_model_refuses(tmp_path):
+    """A trap too soft to hold 1 kg against its neighbour's gravity (negative stiffness,
+    PhysicsError in the model stage) fails on both routes with the same message; out-of-scope
+    models (an [interactions] table) still agree point by point."""
+    data = _pair().to_dict()
+    for body in data["bodies"]:
+        body["mass_kg"] = 1.0
+    data["time_grid"] = {"points": 21}
+    spec = small_sweep([{"path": "bodies[*].trap_hz", "label": "f", "values": [0.01, 1.0]}],
+                       base=parse_protocol(data, source="heavy pair (test)"))
+    fast = _compare_routes(spec, tmp_path / "soft")
+    assert fast.status.values.tolist() == [2, 1] and "stiffness" in str(fast.message.values[0])
+    data = _pair().to_dict()
+    data["interactions"] = {"include": ["gravity"]}
+    data["time_grid"] = {"points": 21}
+    spec = small_sweep([{"path": "bodies[*].mass_kg", "label": "m", "values": [1e-6, 2e-6]}],
+                       base=parse_protocol(data, source="pair with [interactions] (test)"))
+    fast = _compare_routes(spec, tmp_path / "interactions")
+    assert (fast.status.values == 1).all()
+
+
+def test_array_dynamics_equal_the_scalar_model_stage():
+    """array_dynamics against setup -> model -> channels built point by point (the code
+    gqsim.simulate runs): drift, diffusion, step and grid agree to 1e-12 relative for every
+    array key at once, including quantum-optical damping in a warm bath and Caldeira-Leggett
+    damping, and an axis along y for the second body."""
+    from gqsim.sweeps.batched_gaussian import _dynamics_of, array_dynamics
+
+    data = _pair().to_dict()
+    data["bodies"][0]["channels"] = {"bath_temperature_k": 1e-9, "localisation_per_m2_s": 3e25,
+                                     "heating_phonons_per_s": 1e-3}
+    data["bodies"][1]["channels"] = {"damping_model": "brownian", "bath_temperature_k": 2e-9}
+    data["bodies"][1]["modes"] = ["y"]
+    data["bodies"][1]["position_m"] = [1e-3, 4e-4, 0.0]
+    base = data
+    from gqsim.oscillators.run import build
+    model = build(parse_protocol(base, source="test"))
+    rng = np.random.default_rng(3)
+    count = 6
+    overrides = {"bodies[0].mass_kg": rng.uniform(0.5e-6, 2e-6, count),
+                 "bodies[*].trap_hz": rng.uniform(0.5, 2.0, count),
+                 "bodies[1].position_m[1]": rng.uniform(-5e-4, 5e-4, count),
+                 "bodies[0].channels.localisation_per_m2_s": rng.uniform(1e24, 1e26, count),
+                 "bodies[*].channels.heating_phonons_per_s": rng.uniform(0, 1e-2, count),
+                 "bodies[*].channels.damping_rate_per_s": rng.uniform(0, 1e-3, count),
+                 "stages[0].duration_s": rng.uniform(0.5, 2.0, count)}
+    drift, diffusion, tau, times, omega_ref, valid = array_dynamics(model, overrides, count)
+    assert valid.all()
+    for j in range(count):
+        dyn = _dynamics_of(base, {path: float(v[j]) for path, v in overrides.items()})
+        for name, got, want in (("drift", drift[j], dyn.drift), ("diffusion", diffusion[j], dyn.diffusion)):
+            # element by element: the gravitational couplings are ~1e-9 of the trap terms
+            np.testing.assert_allclose(got, want, rtol=1e-12, atol=0, err_msg=name)
+        assert tau[j] == pytest.approx(dyn.tau, rel=1e-13)
+        np.testing.assert_allclose(times[j], dyn.times, rtol=1e-15)
+        np.testing.assert_allclose(omega_ref[j], dyn.model.scales.omega_ref_rad_s, rtol=1e-15)
+        assert np.abs(dyn.diffusion).max() > 0 and dyn.drift[1, 2] != 0  # open and coupled (dp1/dt ~ x2)
