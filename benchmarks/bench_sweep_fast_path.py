@@ -1,9 +1,9 @@
 """Throughput of the batched two-qubit sweep route against gqsim.simulate called point by point.
 
 Both run in this process on the same grid definition (side-by-side bench-3 protocol, 200 time
-points per grid point; three two-oscillator maps likewise: trap x squeezing and mass x heating,
-whose keys the batched route applies without building a model per point, and gas pressure x
-temperature of an [environment] table, where every point builds its own model). Targets from issue 7: >= 1e5 points/s for
+points per grid point; four two-oscillator maps likewise: trap x squeezing, mass x heating and
+gas pressure x temperature, whose keys the batched route applies without building a model per
+point, and mass x heating with a Coulomb term, where every point builds its own model). Targets from issue 7: >= 1e5 points/s for
 a two-qubit map, >= 1e4 for a two-oscillator map, and >= 50x the single-point API in a loop.
 The machine is shared by several jobs: expect run-to-run spread. Reported: the compiled kernel alone, the whole serial sweep
 into a zarr store (storage included), and the single-point loop. Last line: the headline ratio.
@@ -75,6 +75,15 @@ def _oscillator_map(axes, base=None) -> tuple[float, float]:
     return points.size / batched_s, len(protocols) / loop_s
 
 
+def _interacting_base():
+    """The demo pair with a Coulomb term next to gravity (1e-18 C each, our own numbers)."""
+    data = _oscillator_base().to_dict()
+    for body in data["bodies"]:
+        body["charge_c"] = 1e-18
+    data["interactions"] = {"include": ["gravity", "coulomb"]}
+    return parse_protocol(data, source="demo pair with a Coulomb term")
+
+
 def _gas_base():
     data = load_protocol(ROOT / "protocols" / "brackenfold-gas.toml").to_dict()
     data["time_grid"] = {"points": TIME_POINTS}
@@ -87,10 +96,14 @@ SHARED_MODELS = [{"path": "bodies[*].trap_hz", "linear": {"start": 0.5, "stop": 
 #: mass x heating rate: both array keys (the model and channel stages in array form)
 ARRAY_KEYS = [{"path": "bodies[*].mass_kg", "logarithmic": {"start": 1e-7, "stop": 1e-5, "count": 20}},
               {"path": "bodies[*].channels.heating_phonons_per_s", "logarithmic": {"start": 1e-5, "stop": 1e-1, "count": 20}}]
-#: gas pressure x temperature of the bundled Brackenfold protocol: [environment] keys, so every
+#: gas pressure x temperature of the bundled Brackenfold protocol: [environment] keys (channel
+#: tables from the environment stage per point, model in array form)
+ENVIRONMENT_KEYS = [{"path": "environment.gas.pressure_pa", "logarithmic": {"start": 1e-22, "stop": 1e-16, "count": 20}},
+                    {"path": "environment.temperature_k", "linear": {"start": 1.0, "stop": 20.0, "count": 20}}]
+#: mass x heating with a Coulomb term in [interactions]: outside the array forms, so every
 #: point builds its own model through the scalar stages
-MODEL_PER_POINT = [{"path": "environment.gas.pressure_pa", "logarithmic": {"start": 1e-22, "stop": 1e-16, "count": 20}},
-                   {"path": "environment.temperature_k", "linear": {"start": 1.0, "stop": 20.0, "count": 20}}]
+MODEL_PER_POINT = [{"path": "bodies[*].mass_kg", "logarithmic": {"start": 1e-7, "stop": 1e-5, "count": 20}},
+                   {"path": "bodies[*].channels.heating_phonons_per_s", "logarithmic": {"start": 1e-5, "stop": 1e-1, "count": 20}}]
 
 
 def main() -> None:
@@ -136,7 +149,9 @@ def main() -> None:
           f"({kernel_rate:.3g}); >= 50x -> {'met' if kernel_rate / loop_rate >= 50 else 'NOT met'}")
     for name, axes, base in (("trap x squeezing (one model build)", SHARED_MODELS, None),
                              ("mass x heating (array keys)", ARRAY_KEYS, None),
-                             ("gas pressure x temperature (a model build per point)", MODEL_PER_POINT, _gas_base())):
+                             ("gas pressure x temperature ([environment] keys)", ENVIRONMENT_KEYS, _gas_base()),
+                             ("mass x heating with [interactions] (a model build per point)", MODEL_PER_POINT,
+                              _interacting_base())):
         osc_rate, osc_loop_rate = _oscillator_map(axes, base)
         print(f"two-oscillator map {name}, batched Gaussian route: {osc_rate:.3g} points/s; gqsim.simulate "
               f"in a loop: {osc_loop_rate:.3g} points/s; ratio {osc_rate / osc_loop_rate:.1f} "

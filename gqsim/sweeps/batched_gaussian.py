@@ -9,18 +9,23 @@ folded into the channels -> setup -> model -> channels, the same code as ``gqsim
 batched:
 
 * points that differ only in keys of the initial covariance (squeezing, its angle, the initial
-  occupation or temperature; :func:`covariance_only`) share one model build and one propagator,
-  and get their own initial covariance from the function ``initial_moments`` uses;
-* one Van Loan block exponential per distinct model for the step propagator (Theorem 1 of
+  occupation or temperature; :func:`covariance_only`) share one model build, and get their own
+  initial covariance from the function ``initial_moments`` uses;
+* masses, trap frequencies, positions, channel rates and the stage duration are applied to a
+  group's model by the array forms of the model and channel stages (:func:`array_dynamics`),
+  and ``[environment]`` keys through the environment stage's channel tables per point
+  (:func:`environment_channels`), where :func:`array_scope` allows; other keys build a model
+  per point;
+* one Van Loan block exponential per point for the step propagator (Theorem 1 of
   [VanLoan1978]): expm([[-A, D], [0, A^T]] dt) gives Phi = e^{A dt} and Q, evaluated for all
-  models together by :func:`stacked_expm` (A = Omega H + A_open, scaled units, vacuum sigma = I);
+  points together by :func:`stacked_expm` (A = Omega H + A_open, scaled units, vacuum sigma = I);
 * the recursion sigma_{k+1} = Phi sigma_k Phi^T + Q, the log-negativity at every grid time
   (Eq. (16) of [VidalWerner2002]) and the smallest eigenvalue of sigma~ + i Omega over t > 0
   (Eq. (8) of [Simon2000]) in one compiled pass, :func:`gqsim.sweeps.gaussian_kernel.propagate_and_measure`,
   whose numpy reference (gqsim.oscillators.measures on the stacked covariances) the tests compare.
 
-The per-point model build (~0.3-0.5 ms of Python) bounds maps in which every point has its own
-model; ``benchmarks/bench_sweep_fast_path.py`` measures both kinds of map.
+A model build per point (~0.3-1 ms of Python) bounds maps over the remaining keys;
+``benchmarks/bench_sweep_fast_path.py`` measures both kinds of map.
 """
 
 from __future__ import annotations
@@ -164,12 +169,16 @@ def axis_kind(path: str) -> str:
     ``"initial"``: changes only the initial covariance (:func:`covariance_only`);
     ``"array"``: a body's mass, trap frequency, position component or channel rate (heating,
     localisation, damping), or the stage duration, evaluated for all points of a model group by
-    :func:`array_dynamics` when the group's model is in its scope; ``"model"``: anything else
+    :func:`array_dynamics` when the group's model is in its scope; ``"environment"``: a key of the
+    ``[environment]`` table, whose channel tables are recomputed per point by the environment
+    stage and then evaluated the same way (see :func:`array_scope`); ``"model"``: anything else
     (points with different values build their own models).
     """
     if covariance_only(path):
         return "initial"
     tokens = split_path(path)
+    if tokens[0] == "environment":
+        return "environment"
     if len(tokens) == 3 and tokens[0] == "stages" and tokens[1] in (0, "*") and tokens[2] == "duration_s":
         return "array"
     if len(tokens) >= 3 and tokens[0] == "bodies":
@@ -179,24 +188,66 @@ def axis_kind(path: str) -> str:
     return "model"
 
 
-def array_scope(data: dict, model) -> bool:
+def array_scope(data: dict, model, paths=()) -> bool:
     """Whether :func:`array_dynamics` reproduces the model of protocol mapping ``data`` for any
-    values of the array keys: Newtonian gravity alone, no environment table (its rates depend on
-    mass and radius), positions in the bodies, stage traps equal to the preparation traps, no
-    measurement channel, masses given directly."""
+    values of the swept ``paths`` (the "array" and "environment" keys): Newtonian gravity alone,
+    positions in the bodies, stage traps equal to the preparation traps, no measurement channel,
+    masses given directly where a mass is swept. With an ``[environment]`` table the body masses
+    and traps must stay fixed (the environment's rates depend on them; the table itself may be
+    swept: its channel tables are recomputed per point)."""
     setup = model.setup
     if setup.interactions is not None or tuple(setup.potentials) != ("gravity",):
         return False
-    if data.get("environment") is not None or data.get("arrangement") is not None:
+    if data.get("arrangement") is not None:
         return False
     stage = data["stages"][0]
     if "trap_hz" in stage or stage.get("inverted_modes"):
         return False
-    return all("mass_kg" in raw and body.channels.measurement_per_m2_s == 0
-               for raw, body in zip(data["bodies"], setup.bodies))
+    if any(body.channels.measurement_per_m2_s != 0 for body in setup.bodies):
+        return False
+    body_keys = {tuple(split_path(p)[2:3]) for p in paths if split_path(p)[0] == "bodies"}
+    if ("mass_kg",) in body_keys and not all("mass_kg" in raw for raw in data["bodies"]):
+        return False
+    if data.get("environment") is not None and body_keys & {("mass_kg",), ("trap_hz",)}:
+        return False
+    return True
 
 
-def array_dynamics(model, overrides: dict, count: int):
+def environment_channels(data: dict, env_values: list, channel_values: list):
+    """Per point, both bodies' BodyChannels with the ``[environment]`` table folded in, as
+    gqsim.oscillators.run.with_environment does for one protocol (the environment stage's own
+    oscillator_channel_table), or None where the point's table or channels are refused.
+
+    ``env_values``: per point, {path: value} of environment keys; ``channel_values``: per point,
+    {path: value} of channel-rate keys (applied to the bodies' own tables first).
+    """
+    from gqsim.environment.budget import _oscillator_bodies, oscillator_channel_table
+    from gqsim.environment.parameters import environment_from_table
+    from gqsim.oscillators.setup import BodyChannels
+
+    setup, _, spheres = _oscillator_bodies(data, data["environment"])
+    out = []
+    done: dict[tuple, tuple | None] = {}
+    for env_point, channel_point in zip(env_values, channel_values):
+        key = tuple(env_point.values()) + tuple(channel_point.values())
+        if key in done:
+            out.append(done[key])
+            continue
+        point = {"environment": _copy(data["environment"]),
+                 "bodies": [{"channels": dict(raw.get("channels", {}))} for raw in data["bodies"]]}
+        try:
+            for path, value in {**env_point, **channel_point}.items():
+                set_path(point, path, value.item() if isinstance(value, np.generic) else value)
+            env = environment_from_table(point["environment"])
+            done[key] = tuple(BodyChannels(**oscillator_channel_table(env, sphere, body, raw["channels"], f"bodies[{i}]"))
+                              for i, (body, sphere, raw) in enumerate(zip(setup.bodies, spheres, point["bodies"])))
+        except (GqsimError, TypeError):
+            done[key] = None
+        out.append(done[key])
+    return out
+
+
+def array_dynamics(model, overrides: dict, count: int, channels=None):
     """Drift, diffusion, step, grid, reference frequencies and validity of ``count`` points that
     share ``model`` except for array-key values ``overrides`` (path -> (count,) values).
 
@@ -208,7 +259,9 @@ def array_dynamics(model, overrides: dict, count: int):
     setup's time grid. The tests pin every key against the scalar route (1e-12). Points whose
     values the scalar stages would refuse (non-positive mass or trap, overlapping bodies, negative
     stiffness, brownian damping without a bath temperature, ...) are marked invalid and left to
-    the one-by-one route, which reports its own error.
+    the one-by-one route, which reports its own error. ``channels``, when given, holds each
+    point's pair of BodyChannels (from :func:`environment_channels`; None for a refused point)
+    and replaces the bodies' channels and the channel-rate overrides.
     """
     from scipy.constants import hbar, k as k_B
 
@@ -223,7 +276,11 @@ def array_dynamics(model, overrides: dict, count: int):
     mass = np.tile(np.array([b.mass_kg for b in bodies], dtype=float), (count, 1))
     trap = np.tile(np.array([b.trap_hz[a] for b, a in zip(bodies, axes)], dtype=float), (count, 1))
     pos = np.tile(np.array([b.position_m for b in bodies], dtype=float), (count, 1, 1))
-    rates = {key: np.tile(np.array([getattr(b.channels, key) for b in bodies], dtype=float), (count, 1))
+    if channels is None:
+        per_point = [tuple(b.channels for b in bodies)] * count
+    else:
+        per_point = [pair if pair is not None else tuple(b.channels for b in bodies) for pair in channels]
+    rates = {key: np.array([[getattr(ch, key) for ch in pair] for pair in per_point], dtype=float).reshape(count, 2)
              for key in _RATE_KEYS}
     duration = np.full(count, float(setup.stages[0].duration_s))
     for path, values in overrides.items():
@@ -246,11 +303,13 @@ def array_dynamics(model, overrides: dict, count: int):
     reach = sum(b.radius_m or 0.0 for b in bodies)
     valid = (np.all(np.isfinite(mass) & (mass > 0), axis=1) & np.all(np.isfinite(trap) & (trap > 0), axis=1)
              & np.isfinite(duration) & (duration > 0) & np.isfinite(d) & (d > 0) & (d > reach))
+    if channels is not None:
+        valid &= np.array([pair is not None for pair in channels], dtype=bool)
     for key, r in rates.items():
         valid &= np.all(np.isfinite(r) & (r >= 0), axis=1)
-    for b, body in enumerate(bodies):
-        if body.channels.damping_model == "brownian" and body.channels.bath_temperature_k is None:
-            valid &= rates["damping_rate_per_s"][:, b] == 0
+    brownian_model = np.array([[ch.damping_model == "brownian" for ch in pair] for pair in per_point]).reshape(count, 2)
+    bath_k = np.array([[ch.bath_temperature_k for ch in pair] for pair in per_point], dtype=object).reshape(count, 2)
+    valid &= ~np.any(brownian_model & (bath_k == None) & (rates["damping_rate_per_s"] > 0), axis=1)  # noqa: E711
     # invalid rows get the model's own values so that no arithmetic below warns; they are dropped
     bad = ~valid
     mass[bad] = [b.mass_kg for b in bodies]
@@ -280,17 +339,18 @@ def array_dynamics(model, overrides: dict, count: int):
     # build_channels with equal shapes merged (Gram matrices add)
     q_plus, q_minus, q_x = np.zeros((count, 2)), np.zeros((count, 2)), np.zeros((count, 2))
     brownian = np.zeros((count, 2))
-    for i, body in enumerate(bodies):
-        ch = body.channels
+    for i in range(2):
         gamma = rates["damping_rate_per_s"][:, i] / omega_unit
-        if ch.damping_model == "quantum_optical":
-            nb = np.array([ch.bath_occupation_at(float(w)) for w in omega_ref[:, i]]) if np.any(gamma > 0) else 0.0
-            q_plus[:, i] += gamma * (nb + 1) / 2
-            q_minus[:, i] += gamma * nb / 2
-        else:
-            brownian[:, i] = gamma
-            lam = mass[:, i] * rates["damping_rate_per_s"][:, i] * k_B * (ch.bath_temperature_k or 0.0) / hbar**2
-            q_x[:, i] += 2 * lam * ell[:, i] ** 2 / omega_unit
+        optical = ~brownian_model[:, i] & (gamma > 0)
+        nb = np.zeros(count)
+        for j in np.flatnonzero(optical):
+            nb[j] = per_point[j][i].bath_occupation_at(float(omega_ref[j, i]))
+        q_plus[:, i] += np.where(optical, gamma * (nb + 1) / 2, 0.0)
+        q_minus[:, i] += np.where(optical, gamma * nb / 2, 0.0)
+        brownian[:, i] = np.where(brownian_model[:, i], gamma, 0.0)
+        bath = np.array([t if t is not None else 0.0 for t in bath_k[:, i]], dtype=float)
+        lam = np.where(brownian_model[:, i], mass[:, i] * rates["damping_rate_per_s"][:, i] * k_B * bath / hbar**2, 0.0)
+        q_x[:, i] += 2 * lam * ell[:, i] ** 2 / omega_unit
         q_x[:, i] += 2 * rates["localisation_per_m2_s"][:, i] * ell[:, i] ** 2 / omega_unit
         heat = rates["heating_phonons_per_s"][:, i] / omega_unit
         q_plus[:, i] += heat / 2
@@ -316,9 +376,12 @@ def evaluate_gaussian_points(spec, points: np.ndarray) -> tuple[dict, np.ndarray
     """Figures of the flat grid indices ``points`` (n,) and a (n,) mask of points left to the
     one-by-one route (models that fail to build, or fall outside the batched scope).
 
-    Points are grouped by their "model" keys (:func:`axis_kind`). A group whose model is in
-    :func:`array_scope` gets the array keys of all its points applied by :func:`array_dynamics`
-    (no build per point); otherwise each distinct set of non-initial values builds its own model.
+    Points are grouped by their "model" keys (:func:`axis_kind`) and each group builds its model
+    once through the scalar stages. With no array or environment keys swept, the group shares it.
+    Otherwise, if the model is in :func:`array_scope`, :func:`array_dynamics` applies the array
+    keys of all its points at once (with per-point channel tables from
+    :func:`environment_channels` when the protocol has an ``[environment]`` table); if not, each
+    distinct set of non-initial values builds its own model.
     Initial covariances are set per point with the same
     :func:`gqsim.oscillators.model.squeezed_thermal_covariance` that ``initial_moments`` uses.
     """
@@ -342,7 +405,6 @@ def evaluate_gaussian_points(spec, points: np.ndarray) -> tuple[dict, np.ndarray
     tau = np.zeros(n)
     omega_ref = np.zeros((n, 2))
     times: list = [None] * n
-    initial_of: list = [None] * n  # tuple of InitialState per body, or the model's own (None)
     model_of: list = [None] * n
 
     def values_of(j, wanted):
@@ -353,18 +415,34 @@ def evaluate_gaussian_points(spec, points: np.ndarray) -> tuple[dict, np.ndarray
         key = tuple(axis_values[k][j] for k in range(len(kinds)) if kinds[k] == "model")
         groups.setdefault(key, []).append(j)
     built: dict[tuple, _Dynamics] = {}
+    swept = [k for k, kind in enumerate(kinds) if kind in ("array", "environment")]
+    swept_paths = [spec.axes[k].path for k in swept]
     for members in groups.values():
         members = np.asarray(members)
         group_values = values_of(members[0], ("model",))
-        array_axes = [k for k, kind in enumerate(kinds) if kind == "array"]
         try:
             group_dyn = _dynamics_of(base, group_values)
         except (GqsimError, ValueError):
             group_dyn = None
-        if group_dyn is not None and (not array_axes or array_scope(_applied(base, group_values), group_dyn.model)):
+        if group_dyn is not None and not swept:  # one model for the whole group
+            drift[members], diffusion[members], tau[members] = group_dyn.drift, group_dyn.diffusion, group_dyn.tau
+            omega_ref[members] = group_dyn.model.scales.omega_ref_rad_s
+            for j in members:
+                times[j], model_of[j] = group_dyn.times, group_dyn.model
+            continue
+        group_data = _applied(base, group_values) if group_dyn is not None else None
+        if group_dyn is not None and array_scope(group_data, group_dyn.model, swept_paths):
+            channels = None
+            array_paths = [spec.axes[k].path for k in swept if kinds[k] == "array"]
+            if group_data.get("environment") is not None:  # channel tables from the environment stage
+                channel_paths = {p for p in array_paths if split_path(p)[2] == "channels"}
+                array_paths = [p for p in array_paths if p not in channel_paths]
+                channels = environment_channels(
+                    group_data, [values_of(j, ("environment",)) for j in members],
+                    [{p: v for p, v in values_of(j, ("array",)).items() if p in channel_paths} for j in members])
             overrides = {spec.axes[k].path: np.array([axis_values[k][j] for j in members], dtype=float)
-                         for k in array_axes}
-            d, q, t, grid, w, valid = array_dynamics(group_dyn.model, overrides, members.size)
+                         for k in swept if spec.axes[k].path in array_paths}
+            d, q, t, grid, w, valid = array_dynamics(group_dyn.model, overrides, members.size, channels)
             drift[members], diffusion[members], tau[members], omega_ref[members] = d, q, t, w
             for row, j in enumerate(members):
                 times[j] = grid[row]
@@ -372,11 +450,11 @@ def evaluate_gaussian_points(spec, points: np.ndarray) -> tuple[dict, np.ndarray
             single[members[~valid]] = True
             continue
         for j in members:  # a model build per distinct non-initial value set
-            key = tuple(v for v in values_of(j, ("model", "array")).values())
+            key = tuple(v for v in values_of(j, ("model", "array", "environment")).values())
             dyn = built.get(key)
             if dyn is None:
                 try:
-                    dyn = _dynamics_of(base, values_of(j, ("model", "array", "initial")))
+                    dyn = _dynamics_of(base, values_of(j, ("model", "array", "environment", "initial")))
                 except (GqsimError, ValueError):
                     single[j] = True  # the failure may be this point's initial state: not cached
                     continue

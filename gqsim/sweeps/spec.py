@@ -26,6 +26,7 @@ point with its message.
 from __future__ import annotations
 
 import copy
+import functools
 import hashlib
 import json
 import math
@@ -185,6 +186,11 @@ class SweepSpec:
 
 def split_path(path: str) -> list:
     """``"bodies[*].mass_kg"`` -> ``["bodies", "*", "mass_kg"]`` (ints for list indices)."""
+    return list(_split_path(path))
+
+
+@functools.lru_cache(maxsize=256)
+def _split_path(path: str) -> tuple:
     tokens: list = []
     for part in path.split("."):
         matched, first = 0, True
@@ -196,7 +202,7 @@ def split_path(path: str) -> list:
             tokens.append(name if name is not None else ("*" if index == "*" else int(index)))
         if not part or matched != len(part):
             raise ProtocolError("path", path, "must look like table.key, list[2].key or list[*].key")
-    return tokens
+    return tuple(tokens)
 
 
 def get_path(data: Mapping[str, Any], path: str) -> list:

@@ -237,3 +237,50 @@ def test_array_dynamics_equal_the_scalar_model_stage():
         np.testing.assert_allclose(times[j], dyn.times, rtol=1e-15)
         np.testing.assert_allclose(omega_ref[j], dyn.model.scales.omega_ref_rad_s, rtol=1e-15)
         assert np.abs(dyn.diffusion).max() > 0 and dyn.drift[1, 2] != 0  # open and coupled (dp1/dt ~ x2)
+
+
+def test_models_outside_the_array_scope_keep_their_own_physics(tmp_path):
+    """With a Coulomb term in [interactions] (charged rehearsal pair: 1e-15 C each, our own demo
+    numbers) the array forms, which know gravity alone, must not be used: a mass axis builds a
+    model per point and an initial-state axis shares the group's own model; both equal
+    gqsim.simulate (1e-12), and the Coulomb coupling really changes the figures (checked against
+    the same sweep without the charges)."""
+    data = _pair().to_dict()
+    for body in data["bodies"]:
+        body["charge_c"] = 1e-15
+    data["interactions"] = {"include": ["gravity", "coulomb"]}
+    data["time_grid"] = {"points": 21}
+    charged = parse_protocol(data, source="charged pair (test)")
+    data.pop("interactions")
+    neutral = parse_protocol(data, source="neutral pair (test)")
+    for axes in ([{"path": "bodies[*].mass_kg", "label": "m", "values": [1e-6, 2e-6]}],
+                 [{"path": "bodies[*].initial.occupation", "label": "n0", "values": [0.0, 0.001]}]):
+        label = axes[0]["label"]
+        fast = _compare_routes(small_sweep(axes, base=charged), tmp_path / f"charged-{label}")
+        plain = run_sweep(small_sweep(axes, base=neutral), tmp_path / f"neutral-{label}.zarr", executor="serial")
+        assert (fast.status.values == 1).all()
+        ours, theirs = fast.min_pt_eigenvalue.values, plain.min_pt_eigenvalue.values
+        assert np.all(np.abs(ours - theirs) > 1e-8)  # rounding between the routes is ~1e-15
+
+
+def test_environment_keys_with_channel_axes_equal_simulate(tmp_path):
+    """[environment] keys (gas pressure and temperature) with a localisation axis and a position
+    axis: each point's channel tables come from the environment stage
+    (batched_gaussian.environment_channels), the model from the array forms; every point equals
+    gqsim.simulate (1e-12), and extra damping next to the gas fails with the environment
+    stage's own one-line message on both routes."""
+    from gqsim.sweeps.batched_gaussian import axis_kind
+
+    axes = [{"path": "environment.gas.pressure_pa", "label": "p", "values": [1e-22, 1e-18]},
+            {"path": "environment.temperature_k", "label": "T", "values": [2.0, 10.0]},
+            {"path": "bodies[0].channels.localisation_per_m2_s", "label": "loc", "values": [0.0, 1e22]},
+            {"path": "bodies[1].position_m[0]", "label": "x1", "values": [1e-3, 1.2e-3]},
+            {"path": "bodies[1].channels.damping_rate_per_s", "label": "extra", "values": [0.0, 1e-9]}]
+    assert [axis_kind(a["path"]) for a in axes] == ["environment", "environment", "array", "array", "array"]
+    spec = small_sweep(axes, base_protocol="brackenfold-gas.toml")
+    fast = _compare_routes(spec, tmp_path)
+    extra = fast.extra.values > 0
+    assert (fast.status.values[..., extra] == 2).all() and (fast.status.values[..., ~extra] == 1).all()
+    assert "counted twice" in str(fast.message.values[0, 0, 0, 0, 1])
+    good = fast.max_log_negativity.values[..., ~extra]
+    assert np.unique(good).size > good.size // 2  # pressure, temperature and localisation all act
