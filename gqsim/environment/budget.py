@@ -505,20 +505,23 @@ def _oscillator_bodies(data: Mapping[str, Any], env_table):
     return setup, env, spheres
 
 
-def oscillator_channel_table(environment, sphere, body, existing: Mapping[str, Any], key: str) -> dict:
+def oscillator_channel_table(environment, sphere, body, existing: Mapping[str, Any], key: str,
+                             terms=None) -> dict:
     """A body's ``channels`` table with the environment merged in (oscillator protocols).
 
     Gas becomes Caldeira-Leggett damping (``damping_model = "brownian"``) at the gas
     temperature - its localisation is that damping's diffusion and is *not* added again;
     photon, laser and user localisation add to ``localisation_per_m2_s`` (the laser's
     anisotropic recoil is taken along the most strongly kicked active mode, conservative,
-    because the table holds one value per body).
+    because the table holds one value per body). ``terms``: the modes' oscillator_terms, when the
+    caller has them already (one tuple per active mode).
     """
     from gqsim.environment.sources import oscillator_terms
     from gqsim.errors import PhysicsError
 
     table = dict(existing)
-    per_mode = [oscillator_terms(environment, sphere, _AXIS_VECTORS[a], body.omega_rad_s(a)) for a in body.modes]
+    per_mode = terms if terms is not None else [
+        oscillator_terms(environment, sphere, _AXIS_VECTORS[a], body.omega_rad_s(a)) for a in body.modes]
     extra_lam = max(sum(t.localisation_per_m2_s for t in terms) for terms in per_mode)
     if extra_lam > 0:
         table["localisation_per_m2_s"] = table.get("localisation_per_m2_s", 0.0) + extra_lam
@@ -540,25 +543,13 @@ def oscillator_noise_budget(data: Mapping[str, Any], *, source: str = "<memory>"
     Gas appears once, as damping at the gas temperature (heating gamma k_B T / (hbar omega));
     the protocol's own channels table is listed as one line per mode.
     """
-    from gqsim.environment.sources import oscillator_terms
-
     protocol, table = split_environment(data, source=source)
     setup, env, spheres = _oscillator_bodies(protocol.data, table)
     lines: list[BudgetLine] = []
     notes: list[str] = []
     for body, sphere in zip(setup.bodies, spheres):
         for axis in body.modes:
-            omega = body.omega_rad_s(axis)
-            rows = []
-            if env is not None:
-                for term in oscillator_terms(env, sphere, _AXIS_VECTORS[axis], omega):
-                    rows.append((term.label, term.heating_phonons_per_s, term.equivalent_localisation_per_m2_s,
-                                 term.driver))
-            own = body.channels
-            own_heat = own.heating_phonons_per_s + rates_heating(own.localisation_per_m2_s, body.mass_kg, omega)
-            own_heat += own.damping_rate_per_s * own.bath_occupation_at(omega)
-            if own_heat > 0:
-                rows.append(("protocol channels table", own_heat, None, None))
+            rows = oscillator_mode_rows(env, sphere, body, axis, body.channels)
             total = sum(r[1] for r in rows)
             for label, heat, lam, driver in rows:
                 lines.append(BudgetLine(body=f"{body.label}.{axis}", source=label, rate_per_s=heat,
@@ -571,6 +562,38 @@ def oscillator_noise_budget(data: Mapping[str, Any], *, source: str = "<memory>"
         notes.append("the protocol has no [environment] table: only its own channels are listed")
     return NoiseBudget(lines=tuple(lines), notes=tuple(dict.fromkeys(notes)),
                        title=protocol.data.get("about", {}).get("title", ""), quantity="heating [phonons/s]")
+
+
+def dominant_source(pairs) -> str:
+    """The source of the largest rate among (source, rate) pairs, in budget order (the first wins
+    a tie); ``"none"`` when no rate is positive. The sweeps' ``dominant_noise`` figure."""
+    best, best_rate = "none", 0.0
+    for source, rate in pairs:
+        if rate > best_rate:
+            best, best_rate = source, rate
+    return best
+
+
+def oscillator_mode_rows(env, sphere, body, axis: str, own, terms=None) -> list[tuple]:
+    """(source, heating [phonons/s], equivalent localisation, driver) of every source acting on
+    mode ``axis`` of ``body``: the environment's terms (:func:`gqsim.environment.sources.oscillator_terms`,
+    or ``terms`` when the caller has them) and then the protocol's own ``channels`` table ``own``
+    (heating + hbar Lambda/(M omega) + damping x bath occupation), listed when it heats at all.
+    ``env`` may be None."""
+    from gqsim.environment.sources import oscillator_terms
+
+    omega = body.omega_rad_s(axis)
+    rows = []
+    if env is not None:
+        if terms is None:
+            terms = oscillator_terms(env, sphere, _AXIS_VECTORS[axis], omega)
+        for term in terms:
+            rows.append((term.label, term.heating_phonons_per_s, term.equivalent_localisation_per_m2_s, term.driver))
+    own_heat = own.heating_phonons_per_s + rates_heating(own.localisation_per_m2_s, body.mass_kg, omega)
+    own_heat += own.damping_rate_per_s * own.bath_occupation_at(omega)
+    if own_heat > 0:
+        rows.append(("protocol channels table", own_heat, None, None))
+    return rows
 
 
 def rates_heating(localisation_per_m2_s: float, mass_kg: float, omega_rad_s: float) -> float:

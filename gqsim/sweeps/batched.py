@@ -56,8 +56,11 @@ BATCHED_PATHS = frozenset(
 _BATCHED_TABLES = frozenset({"schema_version", "family", "about", "arrangement", "bodies", "timing", "field",
                              "time_grid", "output", "solver"})
 _BATCHED_BODY_KEYS = frozenset({"label", "mass_kg", "radius_m", "dephasing", "spin", "amplitudes"})
-#: order of the decoherence sources compared for ``dominant_noise`` (first wins a tie)
-NOISE_SOURCES = ("none", "bodies[0].dephasing", "bodies[0].spin", "bodies[1].dephasing", "bodies[1].spin")
+#: the decoherence sources the batched model has, in noise-budget order (body 0 then body 1,
+#: each: protocol dephasing, spin pure dephasing; the first wins a tie), named as
+#: gqsim.environment.budget names them: the ``dominant_noise`` figure
+NOISE_SOURCES = ("none", "protocol dephasing table", "spin pure dephasing (T2)",
+                 "protocol dephasing table", "spin pure dephasing (T2)")
 
 #: E_N values within max(MAX_TIE_RELATIVE * max, MAX_TIE_FLOOR) of the maximum count as the
 #: maximum and the earliest such time is reported: round-off (~1e-16 per entry, ~1e-15 between
@@ -239,7 +242,7 @@ def pt_eigenvalues(theta: np.ndarray, p: np.ndarray, q: np.ndarray) -> np.ndarra
 
 
 def evaluate_batch(batch: QubitBatch) -> dict[str, np.ndarray]:
-    """Every sweep figure for the batch, each (n,) (``dominant_noise`` as an index into NOISE_SOURCES).
+    """Every sweep figure for the batch, each (n,) (``dominant_noise``: a source name of NOISE_SOURCES).
 
     Runs the compiled kernel :func:`_qubit_kernel`; :func:`evaluate_batch_numpy` is the plain
     numpy version of the same formulas and :func:`evaluate_batch_reference` the explicit-matrix
@@ -338,7 +341,7 @@ def _scalar_figures(batch: QubitBatch, rate, max_en, t_max, min_pt) -> dict[str,
         "min_pt_eigenvalue": min_pt,
         "entangling_rate_rad_s": rate,
         "dephasing_threshold_per_s": np.abs(rate) / 2,
-        "dominant_noise": dominant.astype(np.int8),
+        "dominant_noise": np.asarray(NOISE_SOURCES)[dominant],
     }
 
 

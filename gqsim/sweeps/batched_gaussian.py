@@ -36,7 +36,7 @@ import numpy as np
 from scipy.linalg import expm
 
 from gqsim.errors import GqsimError
-from gqsim.sweeps.spec import CERTIFICATION_FIGURES, set_path, split_path
+from gqsim.sweeps.spec import CERTIFICATION_FIGURES, NOISE_LABEL_WIDTH, set_path, split_path
 
 __all__ = ["gaussian_support", "evaluate_gaussian_points", "stacked_expm", "covariance_only", "axis_kind",
            "array_scope", "array_dynamics"]
@@ -213,38 +213,48 @@ def array_scope(data: dict, model, paths=()) -> bool:
     return True
 
 
-def environment_channels(data: dict, env_values: list, channel_values: list):
+def environment_channels(data: dict, env_values: list, channel_values: list) -> tuple[list, list]:
     """Per point, both bodies' BodyChannels with the ``[environment]`` table folded in, as
     gqsim.oscillators.run.with_environment does for one protocol (the environment stage's own
-    oscillator_channel_table), or None where the point's table or channels are refused.
+    oscillator_channel_table), or None where the point's table or channels are refused; and per
+    point the dominant source of its noise budget (budget.oscillator_mode_rows, dominant_source).
 
     ``env_values``: per point, {path: value} of environment keys; ``channel_values``: per point,
     {path: value} of channel-rate keys (applied to the bodies' own tables first).
     """
-    from gqsim.environment.budget import _oscillator_bodies, oscillator_channel_table
+    from gqsim.environment.budget import (_AXIS_VECTORS, _oscillator_bodies, dominant_source,
+                                          oscillator_channel_table, oscillator_mode_rows)
+    from gqsim.environment.sources import oscillator_terms
     from gqsim.environment.parameters import environment_from_table
     from gqsim.oscillators.setup import BodyChannels
 
     setup, _, spheres = _oscillator_bodies(data, data["environment"])
-    out = []
-    done: dict[tuple, tuple | None] = {}
+    channels, labels = [], []
+    done: dict[tuple, tuple] = {}
     for env_point, channel_point in zip(env_values, channel_values):
         key = tuple(env_point.values()) + tuple(channel_point.values())
-        if key in done:
-            out.append(done[key])
-            continue
-        point = {"environment": _copy(data["environment"]),
-                 "bodies": [{"channels": dict(raw.get("channels", {}))} for raw in data["bodies"]]}
-        try:
-            for path, value in {**env_point, **channel_point}.items():
-                set_path(point, path, value.item() if isinstance(value, np.generic) else value)
-            env = environment_from_table(point["environment"])
-            done[key] = tuple(BodyChannels(**oscillator_channel_table(env, sphere, body, raw["channels"], f"bodies[{i}]"))
-                              for i, (body, sphere, raw) in enumerate(zip(setup.bodies, spheres, point["bodies"])))
-        except (GqsimError, TypeError):
-            done[key] = None
-        out.append(done[key])
-    return out
+        if key not in done:
+            point = {"environment": _copy(data["environment"]),
+                     "bodies": [{"channels": dict(raw.get("channels", {}))} for raw in data["bodies"]]}
+            try:
+                for path, value in {**env_point, **channel_point}.items():
+                    set_path(point, path, value.item() if isinstance(value, np.generic) else value)
+                env = environment_from_table(point["environment"])
+                bodies = list(zip(setup.bodies, spheres, point["bodies"]))
+                terms = [oscillator_terms(env, sphere, _AXIS_VECTORS[body.modes[0]], body.omega_rad_s(body.modes[0]))
+                         for body, sphere, _ in bodies]
+                folded = tuple(BodyChannels(**oscillator_channel_table(env, sphere, body, raw["channels"],
+                                                                       f"bodies[{i}]", terms=[t]))
+                               for i, ((body, sphere, raw), t) in enumerate(zip(bodies, terms)))
+                rows = [row for (body, sphere, raw), t in zip(bodies, terms)
+                        for row in oscillator_mode_rows(env, sphere, body, body.modes[0],
+                                                        BodyChannels(**raw["channels"]), terms=t)]
+                done[key] = (folded, dominant_source((row[0], row[1]) for row in rows))
+            except (GqsimError, TypeError):
+                done[key] = (None, "")
+        channels.append(done[key][0])
+        labels.append(done[key][1])
+    return channels, labels
 
 
 def array_dynamics(model, overrides: dict, count: int, channels=None):
@@ -262,6 +272,11 @@ def array_dynamics(model, overrides: dict, count: int, channels=None):
     the one-by-one route, which reports its own error. ``channels``, when given, holds each
     point's pair of BodyChannels (from :func:`environment_channels`; None for a refused point)
     and replaces the bodies' channels and the channel-rate overrides.
+
+    Returns drift (count, 4, 4), diffusion (count, 4, 4), tau (count,), times (count, T),
+    omega_ref (count, 2), valid (count,) and heated (count,): whether the bodies' own channels
+    heat at all (heating, localisation, or damping in a bath with non-zero occupation), which is
+    when the noise budget lists its "protocol channels table" row (budget.oscillator_mode_rows).
     """
     from scipy.constants import hbar, k as k_B
 
@@ -339,12 +354,15 @@ def array_dynamics(model, overrides: dict, count: int, channels=None):
     # build_channels with equal shapes merged (Gram matrices add)
     q_plus, q_minus, q_x = np.zeros((count, 2)), np.zeros((count, 2)), np.zeros((count, 2))
     brownian = np.zeros((count, 2))
+    heated = np.zeros(count, dtype=bool)
     for i in range(2):
         gamma = rates["damping_rate_per_s"][:, i] / omega_unit
         optical = ~brownian_model[:, i] & (gamma > 0)
         nb = np.zeros(count)
-        for j in np.flatnonzero(optical):
+        for j in np.flatnonzero(gamma > 0):
             nb[j] = per_point[j][i].bath_occupation_at(float(omega_ref[j, i]))
+        heated |= ((rates["heating_phonons_per_s"][:, i] > 0) | (rates["localisation_per_m2_s"][:, i] > 0)
+                   | ((gamma > 0) & (nb > 0)))
         q_plus[:, i] += np.where(optical, gamma * (nb + 1) / 2, 0.0)
         q_minus[:, i] += np.where(optical, gamma * nb / 2, 0.0)
         brownian[:, i] = np.where(brownian_model[:, i], gamma, 0.0)
@@ -367,7 +385,7 @@ def array_dynamics(model, overrides: dict, count: int, channels=None):
     points = setup.times_s.size
     times = np.linspace(0.0, duration, points, axis=-1)
     tau = (times[:, 1] - times[:, 0]) * omega_unit if points > 1 else np.zeros(count)
-    return drift, diffusion, tau, times, omega_ref, valid
+    return drift, diffusion, tau, times, omega_ref, valid, heated
 
 
 # ----------------------------------------------------------------------------- evaluation
@@ -395,7 +413,8 @@ def evaluate_gaussian_points(spec, points: np.ndarray) -> tuple[dict, np.ndarray
     figures = {"max_log_negativity": np.full(n, np.nan), "time_of_max_s": np.full(n, np.nan),
                "entangled": np.full(n, -1, dtype=np.int8), "min_pt_eigenvalue": np.full(n, np.nan),
                "entangling_rate_rad_s": np.full(n, np.nan), "dephasing_threshold_per_s": np.full(n, np.nan),
-               "dominant_noise": np.full(n, -1, dtype=np.int8)}
+               "dominant_noise": np.full(n, "", dtype=f"<U{NOISE_LABEL_WIDTH}")}
+    noise = np.full(n, "", dtype=f"<U{NOISE_LABEL_WIDTH}")
     kinds = [axis_kind(a.path) for a in spec.axes]
     index = np.unravel_index(points, spec.shape) if spec.axes else ()
     axis_values = [np.asarray(a.values, dtype=object)[i] for a, i in zip(spec.axes, index)]
@@ -415,6 +434,7 @@ def evaluate_gaussian_points(spec, points: np.ndarray) -> tuple[dict, np.ndarray
         key = tuple(axis_values[k][j] for k in range(len(kinds)) if kinds[k] == "model")
         groups.setdefault(key, []).append(j)
     built: dict[tuple, _Dynamics] = {}
+    noise_of: dict[tuple, str] = {}
     swept = [k for k, kind in enumerate(kinds) if kind in ("array", "environment")]
     swept_paths = [spec.axes[k].path for k in swept]
     for members in groups.values():
@@ -424,26 +444,28 @@ def evaluate_gaussian_points(spec, points: np.ndarray) -> tuple[dict, np.ndarray
             group_dyn = _dynamics_of(base, group_values)
         except (GqsimError, ValueError):
             group_dyn = None
+        group_data = _applied(base, group_values) if group_dyn is not None else None
         if group_dyn is not None and not swept:  # one model for the whole group
             drift[members], diffusion[members], tau[members] = group_dyn.drift, group_dyn.diffusion, group_dyn.tau
             omega_ref[members] = group_dyn.model.scales.omega_ref_rad_s
+            noise[members] = _dominant_noise(group_data, group_dyn.model)
             for j in members:
                 times[j], model_of[j] = group_dyn.times, group_dyn.model
             continue
-        group_data = _applied(base, group_values) if group_dyn is not None else None
         if group_dyn is not None and array_scope(group_data, group_dyn.model, swept_paths):
             channels = None
             array_paths = [spec.axes[k].path for k in swept if kinds[k] == "array"]
             if group_data.get("environment") is not None:  # channel tables from the environment stage
                 channel_paths = {p for p in array_paths if split_path(p)[2] == "channels"}
                 array_paths = [p for p in array_paths if p not in channel_paths]
-                channels = environment_channels(
+                channels, labels = environment_channels(
                     group_data, [values_of(j, ("environment",)) for j in members],
                     [{p: v for p, v in values_of(j, ("array",)).items() if p in channel_paths} for j in members])
             overrides = {spec.axes[k].path: np.array([axis_values[k][j] for j in members], dtype=float)
                          for k in swept if spec.axes[k].path in array_paths}
-            d, q, t, grid, w, valid = array_dynamics(group_dyn.model, overrides, members.size, channels)
+            d, q, t, grid, w, valid, heated = array_dynamics(group_dyn.model, overrides, members.size, channels)
             drift[members], diffusion[members], tau[members], omega_ref[members] = d, q, t, w
+            noise[members] = labels if channels is not None else np.where(heated, "protocol channels table", "none")
             for row, j in enumerate(members):
                 times[j] = grid[row]
                 model_of[j] = group_dyn.model
@@ -459,6 +481,9 @@ def evaluate_gaussian_points(spec, points: np.ndarray) -> tuple[dict, np.ndarray
                     single[j] = True  # the failure may be this point's initial state: not cached
                     continue
                 built[key] = dyn
+                noise_of[key] = _dominant_noise(_applied(base, values_of(j, ("model", "array", "environment"))),
+                                                dyn.model)
+            noise[j] = noise_of[key]
             drift[j], diffusion[j], tau[j] = dyn.drift, dyn.diffusion, dyn.tau
             omega_ref[j] = dyn.model.scales.omega_ref_rad_s
             times[j], model_of[j] = dyn.times, dyn.model
@@ -513,7 +538,20 @@ def evaluate_gaussian_points(spec, points: np.ndarray) -> tuple[dict, np.ndarray
     figures["entangled"][ok] = np.any(en > EN_FLOOR, axis=1).astype(np.int8)
     if want_min:
         figures["min_pt_eigenvalue"][ok] = lam
+    figures["dominant_noise"][ok] = noise[ok]
     return figures, single
+
+
+def _dominant_noise(data: dict, model) -> str:
+    """The dominant source of the noise budget of protocol mapping ``data`` (gqsim.environment.budget);
+    without an ``[environment]`` table only the bodies' own channels can be listed, and the
+    model's setup already holds them."""
+    from gqsim.environment.budget import dominant_source, noise_budget, oscillator_mode_rows
+
+    if data.get("environment") is None:
+        return dominant_source((row[0], row[1]) for body in model.setup.bodies for axis in body.modes
+                               for row in oscillator_mode_rows(None, None, body, axis, body.channels))
+    return dominant_source((line.source, line.rate_per_s) for line in noise_budget(data).lines)
 
 
 def _applied(base_data: dict, values: dict) -> dict:

@@ -15,7 +15,7 @@ import numpy as np
 
 from gqsim.errors import GqsimError
 from gqsim.measures import partial_transpose
-from gqsim.pipeline import build, simulate
+from gqsim.pipeline import simulate
 from gqsim.protocol import Protocol, parse_protocol
 from gqsim.sweeps.spec import CERTIFICATION_FIGURES
 
@@ -24,7 +24,7 @@ __all__ = ["evaluate_point", "NOT_APPLICABLE"]
 #: family -> figures stored as NaN because the family does not define them
 NOT_APPLICABLE = {
     "superposition": (),
-    "oscillators": ("entangling_rate_rad_s", "dephasing_threshold_per_s", "dominant_noise"),
+    "oscillators": ("entangling_rate_rad_s", "dephasing_threshold_per_s"),
 }
 
 
@@ -39,14 +39,16 @@ def _with_log_negativity(protocol: Protocol) -> Protocol:
 
 
 def evaluate_point(protocol: Protocol, figures: tuple = (), certification: Mapping | None = None) -> dict:
-    """Figures of merit of one protocol; ``dominant_noise`` as an index into NOISE_SOURCES.
+    """Figures of merit of one protocol; ``dominant_noise`` is the source with the largest rate
+    in the run's noise budget (gqsim.environment.budget.dominant_source).
 
     The certification figures are computed only when listed in ``figures`` (they plan a
     measurement with :func:`gqsim.certify.certify_result`; ``certification`` holds its
     ``confidence`` and ``overhead_s``). Raises the GqsimError of the failing stage for an
     invalid point (the runner records it).
     """
-    from gqsim.sweeps.batched import NOISE_SOURCES, first_near_max
+    from gqsim.environment.budget import dominant_source
+    from gqsim.sweeps.batched import first_near_max
 
     protocol = _with_log_negativity(protocol)
     result = simulate(protocol)
@@ -64,7 +66,8 @@ def evaluate_point(protocol: Protocol, figures: tuple = (), certification: Mappi
         "min_pt_eigenvalue": math.nan,
         "entangling_rate_rad_s": math.nan,
         "dephasing_threshold_per_s": math.nan,
-        "dominant_noise": -1,
+        "dominant_noise": dominant_source((row["channel"], row["rate"])
+                                          for row in result.summary["noise_budget"]["rows"]),
     }
     if protocol.family == "superposition":
         states = result.states
@@ -74,7 +77,6 @@ def evaluate_point(protocol: Protocol, figures: tuple = (), certification: Mappi
         phase = result.summary["entangling_phase"]
         out["entangling_rate_rad_s"] = float(phase["analytic_rate_rad_s"])
         out["dephasing_threshold_per_s"] = float(phase["dephasing_threshold_per_s"])
-        out["dominant_noise"] = NOISE_SOURCES.index(_dominant_noise(protocol))
     elif "simon_min_eigenvalue" in result.series:
         out["min_pt_eigenvalue"] = float(np.min(np.asarray(result.series["simon_min_eigenvalue"])[times > 0]))
     if set(CERTIFICATION_FIGURES) & set(figures):
@@ -101,22 +103,6 @@ def _certification(protocol: Protocol, result, options: Mapping) -> dict:
     return {"certification_time_s": float(row["best_time_s"]),
             "certification_repetitions": float(row["total_repetitions"]),
             "certification_lab_time_s": float(row["lab_time_s"])}
-
-
-def _dominant_noise(protocol: Protocol) -> str:
-    """Name of the decoherence source with the largest coherence decay rate at full split."""
-    from gqsim.channels import channel_from_spec
-
-    model = build(protocol)
-    best, best_rate = "none", 0.0
-    for i, body in enumerate(model.setup.bodies):
-        span = float(np.max(body.branch_separations_m))
-        rates = {f"bodies[{i}].dephasing": float(channel_from_spec(body.dephasing).rate_per_s(np.array(span))),
-                 f"bodies[{i}].spin": body.spin.pure_dephasing_per_s}
-        for name, rate in rates.items():
-            if rate > best_rate:
-                best, best_rate = name, rate
-    return best
 
 
 def safe_evaluate(protocol_or_error, figures: tuple = (), certification: Mapping | None = None

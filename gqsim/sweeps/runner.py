@@ -29,7 +29,7 @@ import numpy as np
 from gqsim.errors import GqsimError, ProtocolError
 from gqsim.sweeps import batched
 from gqsim.sweeps.one_by_one import safe_evaluate
-from gqsim.sweeps.spec import Axis, Execution, SweepSpec, point_protocol
+from gqsim.sweeps.spec import NOISE_LABEL_WIDTH, Axis, Execution, SweepSpec, point_protocol
 from gqsim.sweeps.storage import DONE, FAILED, MESSAGE_WIDTH, SweepStore, open_sweep
 
 __all__ = ["run_sweep", "resolve_route", "compute_block", "compute_points", "spec_from_definition", "SCHEDULER_TIMEOUT_S"]
@@ -85,11 +85,19 @@ def compute_block(definition: str, route: str, block: tuple) -> tuple[dict, np.n
     return compute_points(spec, route, _block_points(spec.shape, block))
 
 
+def _empty_figure(name: str, n: int) -> np.ndarray:
+    """(n,) placeholders of a figure before (or instead of) evaluation: -1, "" or NaN."""
+    if name == "entangled":
+        return np.full(n, -1, dtype=np.int8)
+    if name == "dominant_noise":
+        return np.full(n, "", dtype=f"<U{NOISE_LABEL_WIDTH}")
+    return np.full(n, np.nan)
+
+
 def compute_points(spec: SweepSpec, route: str, points: np.ndarray) -> tuple[dict, np.ndarray, np.ndarray]:
     """Figures, status and messages of the flat grid indices ``points`` (n,)."""
     n = points.size
-    figures = {name: (np.full(n, -1, dtype=np.int8) if name in ("entangled", "dominant_noise")
-                      else np.full(n, np.nan)) for name in spec.figures}
+    figures = {name: _empty_figure(name, n) for name in spec.figures}
     status = np.full(n, DONE, dtype=np.int8)
     messages = np.full(n, "", dtype=f"<U{MESSAGE_WIDTH}")
     if route == "batched" and spec.base.family == "oscillators":
@@ -117,7 +125,7 @@ def compute_points(spec: SweepSpec, route: str, points: np.ndarray) -> tuple[dic
             status[j] = FAILED
             messages[j] = message[:MESSAGE_WIDTH]
             for name in spec.figures:
-                figures[name][j] = -1 if figures[name].dtype == np.int8 else np.nan
+                figures[name][j] = _empty_figure(name, 1)[0]
         else:
             for name in spec.figures:
                 figures[name][j] = result[name]

@@ -55,6 +55,11 @@ __all__ = [
 ]
 
 SWEEP_VERSION = 1
+#: what the stored figures mean; a store written under another layout is refused, not mixed
+#: (2: ``dominant_noise`` holds the noise budget's source name instead of an index)
+STORE_LAYOUT = 2
+#: characters kept of a ``dominant_noise`` source name (fixed-width text in the store)
+NOISE_LABEL_WIDTH = 64
 
 #: figure name -> (unit, description)
 FIGURES: dict[str, tuple[str, str]] = {
@@ -66,7 +71,9 @@ FIGURES: dict[str, tuple[str, str]] = {
     "entangling_rate_rad_s": ("rad/s", "analytic entangling-phase rate while the branches are held"),
     "dephasing_threshold_per_s": ("1/s", "|rate|/2: a per-body constant dephasing rate above this "
                                          "prevents entanglement (shared physics references §1.8)"),
-    "dominant_noise": ("", "which decoherence source has the largest rate at full split"),
+    "dominant_noise": ("", "source with the largest rate in the point's noise budget (gqsim.environment.budget: "
+                           "coherence decay at full split for superpositions, heating for oscillators); "
+                           "'none' where nothing decoheres, '' where the point is not evaluated"),
     "certification_time_s": ("s", "grid time at which certifying entanglement takes the least lab time "
                                   "(optimal PPT witness for branches, Duan for oscillators; gqsim.certify); "
                                   "NaN where the grid never certifies"),
@@ -169,6 +176,7 @@ class SweepSpec:
         """JSON-ready description of what the stored numbers depend on (no execution settings)."""
         return {
             "sweep_version": SWEEP_VERSION,
+            "store_layout": STORE_LAYOUT,
             "base_protocol": self.base.to_dict(),
             "axes": [{"path": a.path, "label": a.label, "spacing": a.spacing, "values": list(a.values)}
                      for a in self.axes],

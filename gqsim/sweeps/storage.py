@@ -5,7 +5,7 @@ Layout
 * one dimension per axis (its label), coordinates = the axis values;
 * one variable per figure of merit, plus ``status`` (int8: 0 pending, 1 done, 2 failed) and
   ``message`` (the one-line error of a failed point, empty otherwise);
-* ``dominant_noise`` is an int8 index with CF ``flag_values``/``flag_meanings`` attributes;
+* ``dominant_noise`` is fixed-width text (the noise budget's source name, "" until evaluated);
 * attributes: the sweep definition, its fingerprint, the evaluation route, the resolved base
   protocol and the package versions (JSON text).
 
@@ -34,7 +34,7 @@ __all__ = ["PENDING", "DONE", "FAILED", "MESSAGE_WIDTH", "SweepStore", "open_swe
 PENDING, DONE, FAILED = 0, 1, 2
 #: characters kept of a failed point's message (fixed-width text in the store)
 MESSAGE_WIDTH = 240
-_INT_FIGURES = {"entangled": -1, "dominant_noise": -1}
+_INT_FIGURES = {"entangled": -1}
 
 
 def chunk_shape(shape: tuple[int, ...], block_points: int) -> tuple[int, ...]:
@@ -127,9 +127,8 @@ class SweepStore:
 
 
 def _template(spec, route: str, fingerprint: str) -> xr.Dataset:
-    from gqsim.sweeps.batched import NOISE_SOURCES
     from gqsim.sweeps.one_by_one import NOT_APPLICABLE
-    from gqsim.sweeps.spec import FIGURES
+    from gqsim.sweeps.spec import FIGURES, NOISE_LABEL_WIDTH
 
     dims = tuple(a.label for a in spec.axes)
     shape = spec.shape
@@ -145,10 +144,8 @@ def _template(spec, route: str, fingerprint: str) -> xr.Dataset:
         attrs = {"units": unit, "description": text}
         if name in _INT_FIGURES:
             arr = np.full(shape, _INT_FIGURES[name], dtype=np.int8)
-            if name == "dominant_noise":
-                attrs.update(flag_values=list(range(len(NOISE_SOURCES))),
-                             flag_meanings=" ".join(s.replace("[", "").replace("]", "") for s in NOISE_SOURCES),
-                             description="index into noise_sources; -1 where the point is not evaluated")
+        elif name == "dominant_noise":
+            arr = np.full(shape, "", dtype=f"<U{NOISE_LABEL_WIDTH}")
         else:
             arr = np.full(shape, np.nan)
         data_vars[name] = xr.Variable(dims, arr, attrs=attrs)
@@ -168,7 +165,6 @@ def _template(spec, route: str, fingerprint: str) -> xr.Dataset:
         "package_versions": json.dumps(_versions(), sort_keys=True),
         "axis_labels": json.dumps(list(dims)),
         "figure_names": json.dumps(list(spec.figures)),
-        "noise_sources": json.dumps(list(NOISE_SOURCES)),
         "not_applicable": json.dumps([f for f in NOT_APPLICABLE.get(spec.base.family, ()) if f in spec.figures]),
     }
     return xr.Dataset(data_vars, coords=coords, attrs=attrs)
