@@ -72,7 +72,7 @@ def summary_table(result: Result) -> str:
     lines = [f"gqsim {result.family} run: {title}",
              f"engine: {result.provenance.engine}   grid: {result.times_s.size} times, "
              f"{result.times_s[0]:.4g} s .. {result.times_s[-1]:.4g} s"]
-    header = f"{'measure':<40} {'unit':<12} {'max':>12} {'at t [s]':>10}  entangled window(s) [s]"
+    header = f"{'measure':<40} {'unit':<12} {'max or min':>15} {'at t [s]':>10}  entangled window(s) [s]"
     lines += ["", header, "-" * len(header)]
     for name in result.series:
         entry = result.summary.get(name)
@@ -85,8 +85,13 @@ def summary_table(result: Result) -> str:
             wtext = "none"
         else:
             wtext = ", ".join(f"{lo:.4g}..{hi:.4g}" for lo, hi in windows[:4]) + (" ..." if len(windows) > 4 else "")
-        lines.append(f"{_label(name):<40} {result.units.get(name, ''):<12} {_num(entry['max']):>12} "
-                     f"{entry['time_of_max_s']:>10.4g}  {wtext}")
+        # criteria that signal entanglement by dropping below a bound report their minimum
+        if "min" in entry:
+            value, at, which = entry["min"], entry["time_of_min_s"], "min"
+        else:
+            value, at, which = entry["max"], entry["time_of_max_s"], "max"
+        lines.append(f"{_label(name):<40} {result.units.get(name, ''):<12} {_num(value):>11} {which} "
+                     f"{at:>10.4g}  {wtext}")
     for section, values in result.summary.items():
         if isinstance(values, Mapping) and "max" not in values:
             lines += ["", f"{section.replace('_', ' ')}:"]

@@ -144,3 +144,17 @@ def test_noise_budget_of_spin_errors_in_the_run_summary():
     assert by_channel["spin pure dephasing (T2)"] == pytest.approx(1 / 20 - 1 / 120, rel=1e-12)
     assert by_channel["spin relaxation (T1)"] == pytest.approx(1 / 120, rel=1e-12)
     assert sum(r["share"] for r in rows) == pytest.approx(1.0, rel=1e-12)
+
+
+def test_summary_table_reports_the_minimum_of_criteria_that_signal_by_dropping():
+    """Simon's eigenvalue and Duan's sum signal entanglement by going below a bound: the table
+    gives their minimum (the series' own minimum, not its maximum) and marks it."""
+    result = gqsim.simulate(ROOT / "protocols" / "osc-squeezed-pair.toml")
+    lines = gqsim.summary_table(result).splitlines()
+    row = next(line for line in lines if line.startswith("simon min eigenvalue"))
+    lam = np.asarray(result.series["simon_min_eigenvalue"])
+    value, which = row.split()[-4:-2]
+    assert which == "min" and float(value) == pytest.approx(lam.min(), rel=1e-5)
+    assert lam.min() < 0 and abs(lam.max() - lam.min()) > 1e-3 * abs(lam.min())  # min and max differ
+    en_row = next(line for line in lines if line.startswith("log-negativity"))
+    assert en_row.split()[-3] == "max"
