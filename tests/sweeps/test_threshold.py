@@ -90,3 +90,38 @@ def test_bad_threshold_requests(tmp_path):
         solve_threshold(ds, "mass_kg", "dominant_noise")
     none = solve_threshold(ds, "mass_kg", "max_log_negativity", 5.0)  # never reached
     assert int(none.dataset.found) == 0 and np.isnan(float(none.dataset.root))
+
+
+def test_thermal_threshold_of_the_oscillator_quench(tmp_path):
+    """Oscillator pair quenched from thermal states of occupation n: entanglement iff
+    2 lambda > ln(1 + 2n), i.e. n < n* = (e^{2 lambda} - 1)/2 (shared references §2.2, first order
+    in lambda = G m/(omega^2 d^3); gqsim.oscillators.analytic.thermal_threshold_occupation). Two
+    1 kg masses 1 mm apart on 1.3 Hz traps give lambda ~ 1e-3 (our own demo numbers). The
+    occupation axis changes only the initial state (batched route); the root found on the full
+    model lies in the map's sign-change bracket and matches n* to O(lambda) and the grid's
+    sampling of the quarter period."""
+    from scipy.constants import G
+
+    from gqsim.oscillators.analytic import thermal_threshold_occupation
+    from gqsim.protocol import parse_protocol
+    from gqsim.sweeps import resolve_route
+
+    mass, d, f = 1.0, 1e-3, 1.3
+    body = {"mass_kg": mass, "trap_hz": f, "modes": ["x"]}
+    base = parse_protocol({"schema_version": 1, "family": "oscillators",
+                           "bodies": [{**body, "label": "Wren", "position_m": [0.0, 0.0, 0.0]},
+                                      {**body, "label": "Finch", "position_m": [d, 0.0, 0.0]}],
+                           "stages": [{"label": "quench", "duration_s": 1.0 / f}], "time_grid": {"points": 401}})
+    lam = G * mass / ((2 * math.pi * f) ** 2 * d**3)
+    n_star = float(thermal_threshold_occupation(lam))
+    spec = small_sweep([{"path": "bodies[*].initial.occupation", "label": "n",
+                         "linear": {"start": 0.0, "stop": 3 * lam, "count": 7}}], base=base)
+    assert resolve_route(spec) == "batched"
+    ds = run_sweep(spec, tmp_path / "n.zarr", executor="serial")
+    solution = solve_threshold(ds, "n", "min_pt_eigenvalue", 0.0, relative_tolerance=1e-12)
+    root = float(solution.dataset.root)
+    low, high = float(solution.dataset.bracket_low), float(solution.dataset.bracket_high)
+    assert low < root < high
+    np.testing.assert_array_equal(ds.entangled.sel(n=[low, high]).values, [1, 0])
+    # first-order law: relative corrections O(lambda) ~ 1e-3; grid: 100 samples per quarter period
+    assert root == pytest.approx(n_star, rel=3 * lam + (math.pi / 200) ** 2)
