@@ -60,6 +60,20 @@ def _open_pair():
     return parse_protocol(data, source="open oscillator pair (test)")
 
 
+def _compare_routes(spec, tmp_path):
+    """Run ``spec`` on the batched and one-by-one routes; statuses, messages and every figure
+    agree (1e-12 where numeric: issue 7's vectorised-equals-single-point check)."""
+    fast = run_sweep(spec, tmp_path / "fast.zarr", executor="serial")
+    slow = run_sweep(spec, tmp_path / "slow.zarr", executor="serial", route="one_by_one")
+    np.testing.assert_array_equal(fast.status.values, slow.status.values)
+    np.testing.assert_array_equal(fast.message.values, slow.message.values)
+    for name in ("max_log_negativity", "time_of_max_s", "min_pt_eigenvalue"):
+        np.testing.assert_allclose(fast[name].values, slow[name].values, rtol=1e-12, atol=1e-12, err_msg=name)
+    np.testing.assert_array_equal(fast.entangled.values, slow.entangled.values)
+    np.testing.assert_array_equal(fast.dominant_noise.values, slow.dominant_noise.values)
+    return fast
+
+
 def test_batched_gaussian_route_equals_one_by_one(tmp_path):
     """Stacked Van Loan propagation + stacked measures = gqsim.simulate per point (issue 7:
     vectorised results equal single-point results to 1e-12)."""
@@ -68,12 +82,8 @@ def test_batched_gaussian_route_equals_one_by_one(tmp_path):
                         {"path": "bodies[*].channels.heating_phonons_per_s", "values": [0.0, 1e-2]},
                         {"path": "stages[0].duration_s", "values": [0.7, 2.0]}], base=_open_pair())
     assert resolve_route(spec) == "batched"
-    fast = run_sweep(spec, tmp_path / "fast.zarr", executor="serial")
-    slow = run_sweep(spec, tmp_path / "slow.zarr", executor="serial", route="one_by_one")
-    assert (fast.status.values == 1).all() and (slow.status.values == 1).all()
-    for name in ("max_log_negativity", "time_of_max_s", "min_pt_eigenvalue"):
-        np.testing.assert_allclose(fast[name].values, slow[name].values, rtol=1e-12, atol=1e-12, err_msg=name)
-    np.testing.assert_array_equal(fast.entangled.values, slow.entangled.values)
+    fast = _compare_routes(spec, tmp_path)
+    assert (fast.status.values == 1).all()
     assert 0 < fast.entangled.values.sum()
 
 
@@ -108,11 +118,8 @@ def test_points_sharing_a_model_get_their_own_initial_states(tmp_path):
                         {"path": "bodies[1].initial.temperature_k", "label": "temp1", "values": [0.0, 3e-10]}],
                        base=base)
     assert resolve_route(spec) == "batched"
-    fast = run_sweep(spec, tmp_path / "fast.zarr", executor="serial")
-    slow = run_sweep(spec, tmp_path / "slow.zarr", executor="serial", route="one_by_one")
-    assert (fast.status.values == 1).all() and (slow.status.values == 1).all()
-    for name in ("max_log_negativity", "time_of_max_s", "min_pt_eigenvalue"):
-        np.testing.assert_allclose(fast[name].values, slow[name].values, rtol=1e-12, atol=1e-12, err_msg=name)
+    fast = _compare_routes(spec, tmp_path)
+    assert (fast.status.values == 1).all()
     # the thermal and squeezed initial states really differ point to point
     # (a warm body leaves the pair separable: its points sit at the pure mode's zero eigenvalue)
     entangled = fast.min_pt_eigenvalue.values[fast.entangled.values == 1]
@@ -128,25 +135,10 @@ def test_batched_route_applies_the_environment_table(tmp_path):
     spec = small_sweep([{"path": "environment.gas.pressure_pa", "label": "pressure",
                          "values": [1e-22, 1e-18, 1e-14]}], base_protocol="brackenfold-gas.toml")
     assert resolve_route(spec) == "batched"
-    fast = run_sweep(spec, tmp_path / "fast.zarr", executor="serial")
-    slow = run_sweep(spec, tmp_path / "slow.zarr", executor="serial", route="one_by_one")
-    assert (fast.status.values == 1).all() and (slow.status.values == 1).all()
-    for name in ("max_log_negativity", "time_of_max_s", "min_pt_eigenvalue"):
-        np.testing.assert_allclose(fast[name].values, slow[name].values, rtol=1e-12, atol=1e-12, err_msg=name)
+    fast = _compare_routes(spec, tmp_path)
+    assert (fast.status.values == 1).all()
     en = fast.max_log_negativity.values
     assert en[0] > 0 and np.all(np.diff(en) <= 0) and en[-1] < en[0]
-
-
-def _compare_routes(spec, tmp_path):
-    fast = run_sweep(spec, tmp_path / "fast.zarr", executor="serial")
-    slow = run_sweep(spec, tmp_path / "slow.zarr", executor="serial", route="one_by_one")
-    np.testing.assert_array_equal(fast.status.values, slow.status.values)
-    np.testing.assert_array_equal(fast.message.values, slow.message.values)
-    for name in ("max_log_negativity", "time_of_max_s", "min_pt_eigenvalue"):
-        np.testing.assert_allclose(fast[name].values, slow[name].values, rtol=1e-12, atol=1e-12, err_msg=name)
-    np.testing.assert_array_equal(fast.entangled.values, slow.entangled.values)
-    np.testing.assert_array_equal(fast.dominant_noise.values, slow.dominant_noise.values)
-    return fast
 
 
 def test_array_route_keys_equal_simulate(tmp_path):
