@@ -3,6 +3,7 @@ export, map, and one-line errors with exit status 2."""
 
 import json
 
+import pytest
 import xarray as xr
 from click.testing import CliRunner
 
@@ -57,3 +58,25 @@ def test_user_mistakes_are_one_line_exit_2(tmp_path):
         assert out.exit_code == 2, out.output
         lines = out.output.strip().splitlines()
         assert len(lines) == 1 and lines[0].startswith("gqsim: error: ")
+
+
+def test_bundled_oscillator_gas_map(tmp_path):
+    """The bundled Brackenfold helium map runs on the batched Gaussian route; the largest
+    tolerable pressure falls as T^(-1/2): the gas localisation
+    Lambda_air = (8/(3 hbar^2)) n sqrt(2 pi m_a) R^2 (k_B T)^(3/2) with n = P/(k_B T) (shared
+    physics references, gas collisions; = M gamma_Epstein k_B T/hbar^2) grows as P sqrt(T), and
+    the map's threshold is set by that diffusion."""
+    runner = CliRunner()
+    store = tmp_path / "gas.zarr"
+    out = runner.invoke(cli, ["scan", "run", str(PROTOCOLS / "sweep-brackenfold-gas.toml"), "--store", str(store),
+                              "--executor", "serial", "--quiet"])
+    assert out.exit_code == 0, out.output
+    assert "route batched" in out.output and "done 660, failed 0" in out.output
+    ds = xr.open_zarr(store)
+    assert ds.dominant_noise.sel(pressure_pa=1e-14, method="nearest").values.tolist() == ["gas collisions"] * 20
+    solved = runner.invoke(cli, ["scan", "threshold", str(store), "--axis", "pressure_pa", "--json"])
+    assert solved.exit_code == 0, solved.output
+    payload = json.loads(solved.output)
+    roots = dict(zip(payload["coords"]["temperature_k"]["data"], payload["data_vars"]["root"]["data"]))
+    assert roots[4.0] / roots[1.0] == pytest.approx(0.5, rel=1e-3)
+    assert roots[16.0] / roots[4.0] == pytest.approx(0.5, rel=1e-3)
