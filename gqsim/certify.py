@@ -501,11 +501,12 @@ def _complex_json(matrix: np.ndarray) -> dict:
     return {"real": np.real(matrix).tolist(), "imag": np.imag(matrix).tolist()}
 
 
-def oscillator_covariances(protocol) -> tuple[np.ndarray, np.ndarray]:
+def oscillator_covariances(protocol, result=None) -> tuple[np.ndarray, np.ndarray]:
     """Covariances (n_times, 4, 4) of the two bodies' modes and their length scales ell [m].
 
-    Stop-gap until oscillator :class:`Result` objects carry their covariance matrices: this
-    re-runs the exact Gaussian engine of :mod:`gqsim.oscillators` and keeps one mode per side.
+    Read from the run's own ``covariance`` series (lab frame, scaled quadratures) when
+    ``result`` carries one; otherwise the exact Gaussian engine of :mod:`gqsim.oscillators`
+    is run. One mode is kept per side.
     """
     from gqsim.oscillators import measures as osc_measures
     from gqsim.oscillators.channels import build_channels
@@ -517,9 +518,12 @@ def oscillator_covariances(protocol) -> tuple[np.ndarray, np.ndarray]:
     if len(side_a) != 1 or len(side_b) != 1:
         raise PhysicsError("bodies", f"{len(side_a)} + {len(side_b)} modes",
                            "the Duan plan needs exactly one mode on each side")
-    traj = evolve_gaussian(model, build_channels(model))
+    if result is not None and "covariance" in result.series:
+        covariances = np.asarray(result.series["covariance"])
+    else:
+        covariances = evolve_gaussian(model, build_channels(model)).covariances
     modes = side_a + side_b
-    return osc_measures.reduce(traj.covariances, modes), np.asarray(model.scales.length_m)[modes]
+    return osc_measures.reduce(covariances, modes), np.asarray(model.scales.length_m)[modes]
 
 
 def plot_repetitions(report: CertificationReport, ax=None):

@@ -48,7 +48,7 @@ def certify_command(protocol: Path, plan_file: Path | None, confidence: float | 
     result = simulate(proto)
     extra = {}
     if result.family == "oscillators":
-        extra["covariances"], extra["position_scale_m"] = oscillator_covariances(proto)
+        extra["covariances"], extra["position_scale_m"] = oscillator_covariances(proto, result)
     report = certify_result(result, options, **extra)
     if out_dir is not None:
         write_certification(report, out_dir)

@@ -91,7 +91,7 @@ def _certification(protocol: Protocol, result, options: Mapping) -> dict:
     kwargs = {"overhead_s": float(options.get("overhead_s", 0.0)),
               "confidence": float(options.get("confidence", 0.999))}
     if protocol.family == "oscillators":
-        cov, scale = oscillator_covariances(protocol)
+        cov, scale = oscillator_covariances(protocol, result)
         report = certify_result(result, CertifyOptions(builtin=("duan",), **kwargs), covariances=cov,
                                 position_scale_m=scale)
     else:

@@ -217,3 +217,18 @@ def test_reported_frames_and_expression_rebuild_the_witness():
         i = int(np.argmin(np.abs(times - row["best_time_s"])))
         # the expression prints 6 significant digits: ~5e-7 per O(0.5) coefficient, a few coefficients
         assert w.value(states[i]) == pytest.approx(row["value"], abs=5e-6)
+
+
+def test_oscillator_covariances_come_from_the_run():
+    """The Duan plan's covariances are the run's own lab-frame series (no second evolution),
+    equal to the exact Gaussian engine's (gqsim.oscillators.engines_gaussian) to rounding."""
+    import gqsim
+    from gqsim.certify import oscillator_covariances
+
+    proto = gqsim.load_protocol(Path(__file__).resolve().parents[2] / "protocols" / "osc-squeezed-pair.toml")
+    result = gqsim.simulate(proto)
+    from_run, scale = oscillator_covariances(proto, result)
+    rerun, scale_again = oscillator_covariances(proto)
+    assert from_run.shape == (result.times_s.size, 4, 4)
+    np.testing.assert_allclose(from_run, rerun, rtol=1e-12, atol=1e-12 * np.abs(rerun).max())
+    np.testing.assert_array_equal(scale, scale_again)
