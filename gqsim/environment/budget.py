@@ -522,7 +522,7 @@ def oscillator_channel_table(environment, sphere, body, existing: Mapping[str, A
     table = dict(existing)
     per_mode = terms if terms is not None else [
         oscillator_terms(environment, sphere, _AXIS_VECTORS[a], body.omega_rad_s(a)) for a in body.modes]
-    extra_lam = max(sum(t.localisation_per_m2_s for t in terms) for terms in per_mode)
+    extra_lam = max(sum(t.localisation_per_m2_s for t in mode_terms) for mode_terms in per_mode)
     if extra_lam > 0:
         table["localisation_per_m2_s"] = table.get("localisation_per_m2_s", 0.0) + extra_lam
     gas = [t for t in per_mode[0] if t.damping_per_s > 0]
