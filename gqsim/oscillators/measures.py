@@ -101,7 +101,9 @@ def simon_invariant(cov):
     arr, single = _stack(cov)
     a, b, c = _blocks(arr)
     j = np.array([[0.0, 1.0], [-1.0, 0.0]])
-    da, db, dc = np.linalg.det(a), np.linalg.det(b), np.linalg.det(c)
+    # 2x2 determinants written out: LAPACK's LU divides by the pivot, which overflows (a
+    # spurious divide-by-zero) when a correlation block holds subnormal numbers
+    da, db, dc = (m[..., 0, 0] * m[..., 1, 1] - m[..., 0, 1] * m[..., 1, 0] for m in (a, b, c))
     tr = np.trace(a @ j @ c @ j @ b @ j @ np.swapaxes(c, -1, -2) @ j, axis1=-2, axis2=-1)
     value = da * db + (0.25 - np.abs(dc)) ** 2 - tr - 0.25 * (da + db)
     return _out(value, single)

@@ -46,6 +46,13 @@ def test_tmsv_simon_value(r, expected):
     assert value == pytest.approx(expected, abs=1.01e-6)
 
 
+def test_simon_of_a_subnormal_correlation():
+    # TMSV with r = 5e-324 (a hypothesis example): -sinh^2(2r)/4 underflows to 0 (Simon 2000), with
+    # no floating-point warning from a determinant's pivot division (warnings are errors here)
+    s = local_symplectic(0.0, 0.0, 2.0, 0.0)  # rotates the correlation block off the diagonal
+    assert measures.simon_invariant(s @ tmsv(5e-324) @ s.T) == pytest.approx(0.0, abs=ROUNDING)
+
+
 def test_vacuum_saturates_simon():
     # Simon 2000: pure product states give exactly 0 (shared §5.2 vacuum check)
     assert measures.simon_invariant(np.eye(4)) == pytest.approx(0.0, abs=ROUNDING)
