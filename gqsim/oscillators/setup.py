@@ -41,6 +41,17 @@ def _vec3(key: str, value) -> tuple[float, float, float]:
     return arr
 
 
+def _occupation(occupation: float | None, temperature_k: float | None, omega_rad_s: float) -> float:
+    """The given occupation, or the Bose-Einstein n = 1/(e^{hbar omega/k_B T} - 1) at
+    ``temperature_k`` (0 at T = 0) when a temperature is given instead (textbook statistical
+    mechanics, common practice)."""
+    if temperature_k is not None:
+        if temperature_k == 0:
+            return 0.0
+        return 1.0 / math.expm1(hbar * omega_rad_s / (k_B * temperature_k))
+    return float(occupation or 0.0)
+
+
 @dataclass(frozen=True, kw_only=True)
 class InitialState:
     """Initial state of every active mode of one body (prepared in the body's own trap).
@@ -116,11 +127,7 @@ class InitialState:
 
     def occupation_at(self, omega_rad_s: float) -> float:
         """Thermal occupation [1] at angular frequency ``omega_rad_s`` [rad/s] (Bose-Einstein)."""
-        if self.temperature_k is not None:
-            if self.temperature_k == 0:
-                return 0.0
-            return 1.0 / math.expm1(hbar * omega_rad_s / (k_B * self.temperature_k))
-        return float(self.occupation or 0.0)
+        return _occupation(self.occupation, self.temperature_k, omega_rad_s)
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -173,12 +180,8 @@ class BodyChannels:
                                 "must lie in [0, 1]")
 
     def bath_occupation_at(self, omega_rad_s: float) -> float:
-        """Bath occupation [1] at angular frequency ``omega_rad_s`` [rad/s]."""
-        if self.bath_temperature_k is not None:
-            if self.bath_temperature_k == 0:
-                return 0.0
-            return 1.0 / math.expm1(hbar * omega_rad_s / (k_B * self.bath_temperature_k))
-        return float(self.bath_occupation or 0.0)
+        """Bath occupation [1] at angular frequency ``omega_rad_s`` [rad/s] (Bose-Einstein)."""
+        return _occupation(self.bath_occupation, self.bath_temperature_k, omega_rad_s)
 
 
 @dataclass(frozen=True, kw_only=True)
