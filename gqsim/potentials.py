@@ -26,7 +26,7 @@ from scipy.constants import G
 
 from gqsim.errors import ProtocolError
 
-__all__ = ["PairPotential", "NewtonianGravity", "pair_energy_at", "pair_hessian_at"]
+__all__ = ["PairPotential", "NewtonianGravity", "pair_energy_at", "pair_gradient_at", "pair_hessian_at"]
 
 
 @runtime_checkable
@@ -93,6 +93,23 @@ def pair_energy_at(potential, separation_m) -> np.ndarray:
     if method is not None:
         return method(vectors)
     return potential.energy_j(np.linalg.norm(vectors, axis=-1))
+
+
+def pair_gradient_at(potential, separation_m) -> np.ndarray:
+    """dU/dr_i at separation vectors (..., 3) [m] -> (..., 3) [J/m]; the force on the second
+    body is its negative.
+
+    Central potentials: U'(r) n, n = r/|r| (chain rule, common practice); otherwise the
+    potential's own ``gradient_from_vector``.
+    """
+    vectors = np.asarray(separation_m, dtype=float)
+    method = getattr(potential, "gradient_from_vector", None)
+    if method is not None:
+        return method(vectors)
+    r = np.linalg.norm(vectors, axis=-1)
+    if np.any(r <= 0) or not np.all(np.isfinite(r)):
+        raise ValueError("pair separations must be finite and > 0 m")
+    return np.asarray(potential.radial_derivative(r, 1))[..., None] * vectors / r[..., None]
 
 
 def pair_hessian_at(potential, separation_m) -> np.ndarray:

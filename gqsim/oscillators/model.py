@@ -41,7 +41,7 @@ from scipy.constants import hbar
 
 from gqsim.errors import PhysicsError
 from gqsim.oscillators.setup import AXES, Body, Setup
-from gqsim.potentials import NewtonianGravity, PairPotential
+from gqsim.potentials import NewtonianGravity, PairPotential, pair_gradient_at, pair_hessian_at
 
 __all__ = [
     "Scales", "StageModel", "AnharmonicTerm", "OscillatorModel", "PairPotentialFactory",
@@ -120,28 +120,26 @@ def radial_derivative(potential: PairPotential, r_m: float, order: int) -> float
 
 
 def pair_hessian(potential: PairPotential, separation_m: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """Force and Hessian of a central pair potential at separation vector R = r_b - r_a.
+    """Force and Hessian of a pair potential at separation vector R = r_b - r_a.
 
-    Implements Hess = V''(d) n n^T + V'(d)/d (I - n n^T) (second-order Taylor expansion of
-    V(|R + u|), Ch. 6 of [Goldstein2002]).
+    Central potentials: Hess = V''(d) n n^T + V'(d)/d (I - n n^T) (second-order Taylor expansion
+    of V(|R + u|), Ch. 6 of [Goldstein2002]); orientation-dependent ones (fixed dipoles) use
+    their own gradient and Hessian in the separation vector. Both through
+    :func:`gqsim.potentials.pair_gradient_at` / :func:`gqsim.potentials.pair_hessian_at`.
 
     Parameters
     ----------
-    potential : pair potential (``radial_derivative`` of orders 1 and 2)
+    potential : pair potential (``radial_derivative`` of orders 1 and 2, or ``gradient_from_vector``
+        and ``hessian_from_vector``)
     separation_m : R = r_b - r_a [m], (3,)
 
     Returns
     -------
-    force_on_b_n : -grad_b V = -V'(d) n [N], (3,); the force on a is its negative
+    force_on_b_n : -grad_b V [N], (3,); the force on a is its negative
     hessian_n_per_m : Hess [N/m], (3, 3)
     """
     sep = np.asarray(separation_m, dtype=float)
-    d = float(np.linalg.norm(sep))
-    n = sep / d
-    v1 = float(potential.radial_derivative(d, 1))
-    v2 = float(potential.radial_derivative(d, 2))
-    nn = np.outer(n, n)
-    return -v1 * n, v2 * nn + (v1 / d) * (np.eye(3) - nn)
+    return -pair_gradient_at(potential, sep), pair_hessian_at(potential, sep)
 
 
 def _mode_index(bodies: Sequence[Body]) -> list[tuple[int, int]]:
@@ -392,6 +390,10 @@ def _anharmonic_terms(bodies, names, scales, factories, order) -> tuple[Anharmon
                     axis_w[ax, i] = (1.0 if bi == b else -1.0) * scales.length_m[i] / ell_ref
             s_w = n_hat @ axis_w
             for pot in (p for factory in factories for p in _potentials(factory, bodies[a], bodies[b])):
+                if hasattr(pot, "hessian_from_vector"):  # the expansion below is in |R| alone
+                    raise PhysicsError("solver.anharmonic_order", order,
+                                       f"the orientation-dependent potential {pot.label!r} is expanded to second "
+                                       "order only; use anharmonic_order = 2")
                 derivs = np.array([radial_derivative(pot, d, k) * ell_ref**k / unit for k in (1, 2, 3, 4)])
                 terms.append(AnharmonicTerm(pair=(bodies[a].label, bodies[b].label), s_weights=s_w,
                                             axis_weights=axis_w, distance=d / ell_ref, derivatives=derivs,

@@ -174,3 +174,44 @@ def test_coulomb_pair_through_the_interactions_table():
     gravity = G * m / (omega * d**3)
     assert abs(model.coupling_rad_s[0, 1]) == pytest.approx(coulomb - gravity, rel=1e-9)
     assert model.potentials == ("gravity", "coulomb")
+
+
+def test_fixed_dipoles_couple_transverse_modes_through_their_full_hessian():
+    """Fixed permanent dipoles (Eq. (4.26) of Jackson 1999, from memory) are orientation dependent:
+    the stiffness between a mode along the separation (A.x) and one across it (B.y), and the
+    static forces, must be the second and first derivatives of U(R) in the separation vector.
+    Checked against central differences of the total energy (gravity + dipole-dipole); the
+    central-potential form V'' n n^T + V'/d (I - n n^T) misses the angular terms."""
+    from gqsim.oscillators.run import build
+    from gqsim.potentials import pair_energy_at
+
+    m, d, f = 1e-12, 30e-6, 2e3
+    data = pair(mass_kg=m, distance_m=d, trap_hz=f)
+    data["bodies"][1]["modes"] = ["y"]
+    dipoles = ([2e-23, 1e-23, 0.0], [0.5e-23, -1.5e-23, 1e-23])
+    for body, p in zip(data["bodies"], dipoles):
+        body["dipole_c_m"] = p
+    data["interactions"] = {"include": ["gravity", "dipole_dipole"]}
+    model = build(parse_protocol(data))
+    from gqsim.confounders import DipoleDipole
+
+    dipole = DipoleDipole(dipole_a_c_m=dipoles[0], dipole_b_c_m=dipoles[1])
+    gravity = NewtonianGravity(mass_a_kg=m, mass_b_kg=m)
+
+    def energy(vec):
+        return float(pair_energy_at(gravity, vec) + pair_energy_at(dipole, vec))
+
+    sep, h, eye = np.array([d, 0.0, 0.0]), 1e-4 * d, np.eye(3)
+    grad = np.array([(energy(sep + h * e) - energy(sep - h * e)) / (2 * h) for e in eye])
+    hess = np.array([[(energy(sep + h * (ei + ej)) - energy(sep + h * (ei - ej)) - energy(sep - h * (ei - ej))
+                       + energy(sep - h * (ei + ej))) / (4 * h * h) for ej in eye] for ei in eye])
+    # modes A.x (u_a along x) and B.y (u_b along y); R = r_b - r_a: K_aa = H_xx, K_bb = H_yy, K_ab = -H_xy
+    expected = np.array([[hess[0, 0], -hess[0, 1]], [-hess[1, 0], hess[1, 1]]])
+    scale = np.abs(expected).max()
+    np.testing.assert_allclose(model.pair_stiffness_n_per_m, expected, rtol=0, atol=1e-5 * scale)
+    assert abs(expected[0, 1]) > 1e-3 * scale  # the transverse coupling is really there
+    np.testing.assert_allclose(model.static_force_n, [grad[0], -grad[1]], rtol=0, atol=1e-5 * np.abs(grad).max())
+    # beyond second order the model expands in |R| alone, which these potentials are not
+    data["solver"] = {"engine": "fock", "anharmonic_order": 4}
+    with pytest.raises(PhysicsError, match="orientation-dependent"):
+        build(parse_protocol(data))
