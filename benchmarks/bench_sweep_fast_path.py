@@ -1,9 +1,10 @@
 """Throughput of the batched two-qubit sweep route against gqsim.simulate called point by point.
 
 Both run in this process on the same grid definition (side-by-side bench-3 protocol, 200 time
-points per grid point; four two-oscillator maps likewise: trap x squeezing, mass x heating and
-gas pressure x temperature, whose keys the batched route applies without building a model per
-point, and mass x heating with a Coulomb term, where every point builds its own model). Targets from issue 7: >= 1e5 points/s for
+points per grid point; six two-oscillator maps likewise: trap x squeezing, mass x heating,
+gas pressure x temperature, mass x heating with a Coulomb term and after a trap quench, whose
+keys the batched route applies without building a model per point, and mass x heating in helium,
+where the gas rates depend on the mass and every point builds its own model). Targets from issue 7: >= 1e5 points/s for
 a two-qubit map, >= 1e4 for a two-oscillator map, and >= 50x the single-point API in a loop.
 The machine is shared by several jobs: expect run-to-run spread. Reported: the compiled kernel alone, the whole serial sweep
 into a zarr store (storage included), and the single-point loop. Last line: the headline ratio.
@@ -84,6 +85,22 @@ def _interacting_base():
     return parse_protocol(data, source="demo pair with a Coulomb term")
 
 
+def _quench_base():
+    """The demo pair quenched into 0.8 Hz traps (stage trap differs from the preparation trap)."""
+    data = _oscillator_base().to_dict()
+    data["stages"][0]["trap_hz"] = 0.8
+    return parse_protocol(data, source="demo pair quenched into a softer trap")
+
+
+def _gas_base_with_masses():
+    """The Brackenfold protocol with masses given directly (so that a mass axis exists)."""
+    data = _gas_base().to_dict()
+    for body in data["bodies"]:
+        body["mass_kg"] = 8e-7
+        body.pop("material")
+    return parse_protocol(data, source="brackenfold-gas.toml with masses (200 time points)")
+
+
 def _gas_base():
     data = load_protocol(ROOT / "protocols" / "brackenfold-gas.toml").to_dict()
     data["time_grid"] = {"points": TIME_POINTS}
@@ -100,10 +117,10 @@ ARRAY_KEYS = [{"path": "bodies[*].mass_kg", "logarithmic": {"start": 1e-7, "stop
 #: tables from the environment stage per point, model in array form)
 ENVIRONMENT_KEYS = [{"path": "environment.gas.pressure_pa", "logarithmic": {"start": 1e-22, "stop": 1e-16, "count": 20}},
                     {"path": "environment.temperature_k", "linear": {"start": 1.0, "stop": 20.0, "count": 20}}]
-#: mass x heating with a Coulomb term in [interactions]: outside the array forms, so every
-#: point builds its own model through the scalar stages
-MODEL_PER_POINT = [{"path": "bodies[*].mass_kg", "logarithmic": {"start": 1e-7, "stop": 1e-5, "count": 20}},
-                   {"path": "bodies[*].channels.heating_phonons_per_s", "logarithmic": {"start": 1e-5, "stop": 1e-1, "count": 20}}]
+#: mass x heating, used with a Coulomb term in [interactions] and after a quench into a softer
+#: stage trap (both in array form), and with the Brackenfold helium (the gas rates depend on the
+#: mass: outside the array forms, every point builds its own model)
+MASS_HEATING = ARRAY_KEYS
 
 
 def main() -> None:
@@ -150,8 +167,12 @@ def main() -> None:
     for name, axes, base in (("trap x squeezing (one model build)", SHARED_MODELS, None),
                              ("mass x heating (array keys)", ARRAY_KEYS, None),
                              ("gas pressure x temperature ([environment] keys)", ENVIRONMENT_KEYS, _gas_base()),
-                             ("mass x heating with [interactions] (a model build per point)", MODEL_PER_POINT,
-                              _interacting_base())):
+                             ("mass x heating with a Coulomb term ([interactions] keys)", MASS_HEATING,
+                              _interacting_base()),
+                             ("mass x heating after a trap quench (array keys)", MASS_HEATING, _quench_base()),
+                             ("mass x heating in helium (a model build per point)",
+                              [dict(MASS_HEATING[0], logarithmic={"start": 4e-7, "stop": 4e-6, "count": 20}),
+                               MASS_HEATING[1]], _gas_base_with_masses())):
         osc_rate, osc_loop_rate = _oscillator_map(axes, base)
         print(f"two-oscillator map {name}, batched Gaussian route: {osc_rate:.3g} points/s; gqsim.simulate "
               f"in a loop: {osc_loop_rate:.3g} points/s; ratio {osc_rate / osc_loop_rate:.1f} "

@@ -46,7 +46,8 @@ from gqsim.potentials import NewtonianGravity, PairPotential, pair_gradient_at, 
 __all__ = [
     "Scales", "StageModel", "AnharmonicTerm", "OscillatorModel", "PairPotentialFactory",
     "gravity_between", "POTENTIAL_FACTORIES", "interactions_between", "pair_hessian", "stiffness_matrix",
-    "build_model", "symplectic_form", "radial_derivative", "squeezed_thermal_covariance",
+    "build_model", "symplectic_form", "radial_derivative", "squeezed_thermal_covariance", "setup_factories",
+    "pair_potentials",
 ]
 
 #: (body_a, body_b) -> one pair potential, or a sequence of them
@@ -401,6 +402,19 @@ def _anharmonic_terms(bodies, names, scales, factories, order) -> tuple[Anharmon
     return tuple(terms)
 
 
+def setup_factories(setup: Setup) -> list[PairPotentialFactory]:
+    """The pair-potential factories a setup names: its ``[interactions]`` table, or the
+    potentials listed by name (gravity by default)."""
+    if setup.interactions is not None:
+        return [interactions_between(setup.interactions)]
+    return [POTENTIAL_FACTORIES[name] for name in setup.potentials]
+
+
+def pair_potentials(setup: Setup, a: int, b: int) -> tuple:
+    """Every pair potential between bodies ``a`` and ``b`` of ``setup``, as :func:`build_model` uses them."""
+    return tuple(p for factory in setup_factories(setup) for p in _potentials(factory, setup.bodies[a], setup.bodies[b]))
+
+
 def build_model(setup: Setup, factories: Sequence[PairPotentialFactory] | None = None) -> OscillatorModel:
     """Build the scaled quadratic model of every stage from a :class:`Setup`.
 
@@ -415,11 +429,8 @@ def build_model(setup: Setup, factories: Sequence[PairPotentialFactory] | None =
     PhysicsError
         when a trapped mode is left with non-positive stiffness and is not declared inverted.
     """
-    if factories is None and setup.interactions is not None:
-        factories = [interactions_between(setup.interactions)]
-        labels = tuple(setup.potentials)
-    elif factories is None:
-        factories = [POTENTIAL_FACTORIES[name] for name in setup.potentials]
+    if factories is None:
+        factories = setup_factories(setup)
         labels = tuple(setup.potentials)
     else:
         labels = tuple(getattr(f, "__name__", "custom") for f in factories)

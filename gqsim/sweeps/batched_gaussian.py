@@ -14,8 +14,8 @@ batched:
 * masses, trap frequencies, positions, channel rates and the stage duration are applied to a
   group's model by the array forms of the model and channel stages (:func:`array_dynamics`),
   and ``[environment]`` keys through the environment stage's channel tables per point
-  (:func:`environment_channels`), where :func:`array_scope` allows; other keys build a model
-  per point;
+  (:func:`environment_channels`), where :func:`array_scope` allows (also with non-gravitational
+  ``[interactions]``); other keys build a model per point;
 * one Van Loan block exponential per point for the step propagator (Theorem 1 of
   [VanLoan1978]): expm([[-A, D], [0, A^T]] dt) gives Phi = e^{A dt} and Q, evaluated for all
   points together by :func:`stacked_expm` (A = Omega H + A_open, scaled units, vacuum sigma = I);
@@ -190,18 +190,13 @@ def axis_kind(path: str) -> str:
 
 def array_scope(data: dict, model, paths=()) -> bool:
     """Whether :func:`array_dynamics` reproduces the model of protocol mapping ``data`` for any
-    values of the swept ``paths`` (the "array" and "environment" keys): Newtonian gravity alone,
-    positions in the bodies, stage traps equal to the preparation traps, no measurement channel,
-    masses given directly where a mass is swept. With an ``[environment]`` table the body masses
+    values of the swept ``paths`` (the "array" and "environment" keys): positions in the bodies,
+    no measurement channel, masses given directly where a mass is swept. Any ``[interactions]`` potentials are allowed: only gravity depends on
+    the masses, and every Hessian is taken in the separation vector. With an ``[environment]`` table the body masses
     and traps must stay fixed (the environment's rates depend on them; the table itself may be
     swept: its channel tables are recomputed per point)."""
     setup = model.setup
-    if setup.interactions is not None or tuple(setup.potentials) != ("gravity",):
-        return False
     if data.get("arrangement") is not None:
-        return False
-    stage = data["stages"][0]
-    if "trap_hz" in stage or stage.get("inverted_modes"):
         return False
     if any(body.channels.measurement_per_m2_s != 0 for body in setup.bodies):
         return False
@@ -257,13 +252,14 @@ def environment_channels(data: dict, env_values: list, channel_values: list) -> 
     return channels, labels
 
 
-def array_dynamics(model, overrides: dict, count: int, channels=None):
+def array_dynamics(model, overrides: dict, count: int, channels=None, stage_traps_given: bool = False):
     """Drift, diffusion, step, grid, reference frequencies and validity of ``count`` points that
     share ``model`` except for array-key values ``overrides`` (path -> (count,) values).
 
     The array forms of the scalar stages, for two bodies with one mode each in
-    :func:`array_scope`: Scales.for_bodies (ell = sqrt(hbar/(m omega))), the gravity Hessian
-    (potentials.pair_hessian_at of unit masses times m_a m_b, U = -G m_a m_b / r),
+    :func:`array_scope`: Scales.for_bodies (ell = sqrt(hbar/(m omega))), the pair Hessians
+    (potentials.pair_hessian_at: gravity of unit masses times m_a m_b, U = -G m_a m_b / r, and
+    the other potentials of the setup as they are),
     stiffness_matrix's mode blocks, _stage_model's Hamiltonian, build_channels' jump rows
     (damping, heating, localisation, Caldeira-Leggett) through channels.lindblad_moments and
     setup's time grid. The tests pin every key against the scalar route (1e-12). Points whose
@@ -271,7 +267,9 @@ def array_dynamics(model, overrides: dict, count: int, channels=None):
     stiffness, brownian damping without a bath temperature, ...) are marked invalid and left to
     the one-by-one route, which reports its own error. ``channels``, when given, holds each
     point's pair of BodyChannels (from :func:`environment_channels`; None for a refused point)
-    and replaces the bodies' channels and the channel-rate overrides.
+    and replaces the bodies' channels and the channel-rate overrides. ``stage_traps_given``: the
+    stage table sets its own trap frequencies (they stay fixed when the bodies' traps are swept);
+    otherwise the stage holds the modes in their preparation traps.
 
     Returns drift (count, 4, 4), diffusion (count, 4, 4), tau (count,), times (count, T),
     omega_ref (count, 2), valid (count,) and heated (count,): whether the bodies' own channels
@@ -281,7 +279,7 @@ def array_dynamics(model, overrides: dict, count: int, channels=None):
     from scipy.constants import hbar, k as k_B
 
     from gqsim.oscillators.channels import lindblad_moments
-    from gqsim.oscillators.model import symplectic_form
+    from gqsim.oscillators.model import pair_potentials, symplectic_form
     from gqsim.oscillators.setup import AXES
     from gqsim.potentials import NewtonianGravity, pair_hessian_at
 
@@ -337,14 +335,28 @@ def array_dynamics(model, overrides: dict, count: int, channels=None):
     omega_ref = 2.0 * np.pi * trap
     omega_unit = omega_ref.max(axis=1)
     ell = np.sqrt(hbar / (mass * omega_ref))
-    hess = pair_hessian_at(NewtonianGravity(mass_a_kg=1.0, mass_b_kg=1.0), sep) * (mass[:, 0] * mass[:, 1])[:, None, None]
+    # gravity scales with m_a m_b (U = -G m_a m_b / r); the other potentials of [interactions]
+    # depend on radii, charges and dipoles, which are not array keys
+    hess = np.zeros((count, 3, 3))
+    for pot in pair_potentials(setup, 0, 1):
+        if isinstance(pot, NewtonianGravity):
+            unit = pair_hessian_at(NewtonianGravity(mass_a_kg=1.0, mass_b_kg=1.0), sep)
+            hess += unit * (mass[:, 0] * mass[:, 1])[:, None, None]
+        else:
+            hess += pair_hessian_at(pot, sep)
     a, b = axes
+    # _stage_model: stiffness m omega_stage^2 (negative for inverted modes) plus the pair terms
+    stage = setup.stages[0]
+    stage_hz = np.tile(np.asarray(stage.trap_hz, dtype=float), (count, 1)) if stage_traps_given else trap
+    sign = np.array([-1.0 if name in stage.inverted else 1.0 for name in setup.mode_names])
     total = np.empty((count, 2, 2))
-    total[:, 0, 0] = mass[:, 0] * omega_ref[:, 0] ** 2 + hess[:, a, a]
-    total[:, 1, 1] = mass[:, 1] * omega_ref[:, 1] ** 2 + hess[:, b, b]
+    total[:, 0, 0] = sign[0] * mass[:, 0] * (2.0 * np.pi * stage_hz[:, 0]) ** 2 + hess[:, a, a]
+    total[:, 1, 1] = sign[1] * mass[:, 1] * (2.0 * np.pi * stage_hz[:, 1]) ** 2 + hess[:, b, b]
     total[:, 0, 1] = -hess[:, a, b]
     total[:, 1, 0] = -hess[:, b, a]
-    valid &= (total[:, 0, 0] > 0) & (total[:, 1, 1] > 0)
+    for i in range(2):  # a trapped, upright mode must keep positive stiffness (PhysicsError otherwise)
+        held = (stage_hz[:, i] > 0) & (sign[i] > 0)
+        valid &= ~held | (total[:, i, i] > 0)
     ham = np.zeros((count, 4, 4))
     ham[:, 0::2, 0::2] = total * (ell[:, :, None] * ell[:, None, :]) / (hbar * omega_unit)[:, None, None]
     ham[:, 1, 1] = omega_ref[:, 0] / omega_unit
@@ -463,7 +475,8 @@ def evaluate_gaussian_points(spec, points: np.ndarray) -> tuple[dict, np.ndarray
                     [{p: v for p, v in values_of(j, ("array",)).items() if p in channel_paths} for j in members])
             overrides = {spec.axes[k].path: np.array([axis_values[k][j] for j in members], dtype=float)
                          for k in swept if spec.axes[k].path in array_paths}
-            d, q, t, grid, w, valid, heated = array_dynamics(group_dyn.model, overrides, members.size, channels)
+            d, q, t, grid, w, valid, heated = array_dynamics(group_dyn.model, overrides, members.size, channels,
+                                                             stage_traps_given="trap_hz" in group_data["stages"][0])
             drift[members], diffusion[members], tau[members], omega_ref[members] = d, q, t, w
             noise[members] = labels if channels is not None else np.where(heated, "protocol channels table", "none")
             for row, j in enumerate(members):
@@ -543,15 +556,19 @@ def evaluate_gaussian_points(spec, points: np.ndarray) -> tuple[dict, np.ndarray
 
 
 def _dominant_noise(data: dict, model) -> str:
-    """The dominant source of the noise budget of protocol mapping ``data`` (gqsim.environment.budget);
-    without an ``[environment]`` table only the bodies' own channels can be listed, and the
-    model's setup already holds them."""
-    from gqsim.environment.budget import dominant_source, noise_budget, oscillator_mode_rows
+    """The dominant source of the noise budget of protocol mapping ``data``: the rows of
+    gqsim.environment.budget.oscillator_noise_budget (oscillator_mode_rows per mode), without its
+    notes and protocol re-validation; without an ``[environment]`` table the model's setup
+    already holds the bodies' own channels."""
+    from gqsim.environment.budget import _oscillator_bodies, dominant_source, oscillator_mode_rows
 
     if data.get("environment") is None:
-        return dominant_source((row[0], row[1]) for body in model.setup.bodies for axis in body.modes
-                               for row in oscillator_mode_rows(None, None, body, axis, body.channels))
-    return dominant_source((line.source, line.rate_per_s) for line in noise_budget(data).lines)
+        bodies, env, spheres = model.setup.bodies, None, [None] * len(model.setup.bodies)
+    else:  # the bodies' own tables (before the environment is folded in), as the budget lists them
+        setup, env, spheres = _oscillator_bodies(data, data["environment"])
+        bodies = setup.bodies
+    return dominant_source((row[0], row[1]) for body, sphere in zip(bodies, spheres) for axis in body.modes
+                           for row in oscillator_mode_rows(env, sphere, body, axis, body.channels))
 
 
 def _applied(base_data: dict, values: dict) -> dict:

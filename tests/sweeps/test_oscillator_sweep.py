@@ -232,12 +232,15 @@ def test_array_dynamics_equal_the_scalar_model_stage():
         assert np.abs(dyn.diffusion).max() > 0 and dyn.drift[1, 2] != 0  # open and coupled (dp1/dt ~ x2)
 
 
-def test_models_outside_the_array_scope_keep_their_own_physics(tmp_path):
-    """With a Coulomb term in [interactions] (charged rehearsal pair: 1e-15 C each, our own demo
-    numbers) the array forms, which know gravity alone, must not be used: a mass axis builds a
-    model per point and an initial-state axis shares the group's own model; both equal
-    gqsim.simulate (1e-12), and the Coulomb coupling really changes the figures (checked against
-    the same sweep without the charges)."""
+def test_interactions_go_through_the_array_forms(tmp_path):
+    """Non-gravitational [interactions] in the array forms: a charged pair (Coulomb, 1e-15 C each)
+    over mass and initial-occupation axes, and a fixed-dipole pair (orientation dependent, a mode
+    across the separation) over position axes. Both equal gqsim.simulate (1e-12), and the
+    Coulomb term really changes the figures (checked against the neutral pair); our own demo
+    numbers."""
+    from gqsim.oscillators.run import build
+    from gqsim.sweeps.batched_gaussian import array_scope
+
     data = _pair().to_dict()
     for body in data["bodies"]:
         body["charge_c"] = 1e-15
@@ -246,6 +249,7 @@ def test_models_outside_the_array_scope_keep_their_own_physics(tmp_path):
     charged = parse_protocol(data, source="charged pair (test)")
     data.pop("interactions")
     neutral = parse_protocol(data, source="neutral pair (test)")
+    assert array_scope(charged.to_dict(), build(charged), ["bodies[*].mass_kg"])
     for axes in ([{"path": "bodies[*].mass_kg", "label": "m", "values": [1e-6, 2e-6]}],
                  [{"path": "bodies[*].initial.occupation", "label": "n0", "values": [0.0, 0.001]}]):
         label = axes[0]["label"]
@@ -254,6 +258,57 @@ def test_models_outside_the_array_scope_keep_their_own_physics(tmp_path):
         assert (fast.status.values == 1).all()
         ours, theirs = fast.min_pt_eigenvalue.values, plain.min_pt_eigenvalue.values
         assert np.all(np.abs(ours - theirs) > 1e-8)  # rounding between the routes is ~1e-15
+
+    data = _pair().to_dict()
+    data["bodies"][1]["modes"] = ["y"]
+    for body, p in zip(data["bodies"], ([2e-20, 1e-20, 0.0], [0.5e-20, -1.5e-20, 1e-20])):
+        body["dipole_c_m"] = p
+    data["interactions"] = {"include": ["gravity", "dipole_dipole"]}
+    data["time_grid"] = {"points": 21}
+    dipoles = parse_protocol(data, source="fixed-dipole pair (test)")
+    axes = [{"path": "bodies[1].position_m[0]", "label": "x1", "values": [1e-3, 1.3e-3]},
+            {"path": "bodies[1].position_m[1]", "label": "y1", "values": [0.0, 2e-4]}]
+    fast = _compare_routes(small_sweep(axes, base=dipoles), tmp_path / "dipoles")
+    assert (fast.status.values == 1).all() and np.unique(fast.min_pt_eigenvalue.values).size == 4
+
+
+def test_quenched_and_inverted_stages_through_the_array_forms(tmp_path):
+    """A stage with its own traps (a quench into a softer trap, and an inverted-potential stage
+    whose growth boosts the coupling; cf. Weiss et al. 2021, from memory) keeps those traps while
+    the bodies' preparation traps and masses are swept; every point equals gqsim.simulate (1e-12)."""
+    from gqsim.oscillators.run import build
+    from gqsim.sweeps.batched_gaussian import array_scope
+
+    axes = [{"path": "bodies[*].mass_kg", "label": "m", "values": [1e-6, 2e-6]},
+            {"path": "bodies[*].trap_hz", "label": "f", "values": [1.0, 1.4]}]
+    for name, stage in (("quench", {"trap_hz": 0.8}), ("inverted", {"trap_hz": 0.3, "inverted_modes": ["Wren.x", "Finch.x"]})):
+        data = _pair().to_dict()
+        data["stages"][0].update(stage, duration_s=0.5)
+        data["time_grid"] = {"points": 21}
+        base = parse_protocol(data, source=f"{name} stage (test)")
+        assert array_scope(base.to_dict(), build(base), [a["path"] for a in axes])
+        fast = _compare_routes(small_sweep(axes, base=base), tmp_path / name)
+        assert (fast.status.values == 1).all() and np.unique(fast.max_log_negativity.values).size == 4
+
+
+def test_models_outside_the_array_scope_build_per_point(tmp_path):
+    """With an [environment] table the gas rates depend on the masses, so a mass axis is outside
+    the array forms and builds a model per point; it still equals gqsim.simulate (1e-12)."""
+    from gqsim.oscillators.run import build
+    from gqsim.protocol import load_protocol
+    from gqsim.sweeps.batched_gaussian import array_scope
+
+    from .helpers import PROTOCOLS
+
+    data = load_protocol(PROTOCOLS / "brackenfold-gas.toml").to_dict()
+    for body in data["bodies"]:
+        body["mass_kg"] = 8e-7
+        body.pop("material")
+    base = parse_protocol(data, source="Brackenfold pair with given masses (test)")
+    assert not array_scope(base.to_dict(), build(base), ["bodies[*].mass_kg"])
+    fast = _compare_routes(small_sweep([{"path": "bodies[*].mass_kg", "label": "m", "values": [8e-7, 2e-6]}],
+                                       base=base), tmp_path)
+    assert (fast.status.values == 1).all()
 
 
 def test_environment_keys_with_channel_axes_equal_simulate(tmp_path):
