@@ -226,6 +226,7 @@ def environment_channels(data: dict, env_values: list, channel_values: list) -> 
     setup, _, spheres = _oscillator_bodies(data, data["environment"])
     channels, labels = [], []
     done: dict[tuple, tuple] = {}
+    own: dict[tuple, list] = {}
     for env_point, channel_point in zip(env_values, channel_values):
         key = tuple(env_point.values()) + tuple(channel_point.values())
         if key not in done:
@@ -241,9 +242,11 @@ def environment_channels(data: dict, env_values: list, channel_values: list) -> 
                 folded = tuple(BodyChannels(**oscillator_channel_table(env, sphere, body, raw["channels"],
                                                                        f"bodies[{i}]", terms=[t]))
                                for i, ((body, sphere, raw), t) in enumerate(zip(bodies, terms)))
-                rows = [row for (body, sphere, raw), t in zip(bodies, terms)
-                        for row in oscillator_mode_rows(env, sphere, body, body.modes[0],
-                                                        BodyChannels(**raw["channels"]), terms=t)]
+                own_key = tuple(channel_point.values())
+                if own_key not in own:  # the bodies' own tables depend on the channel keys alone
+                    own[own_key] = [BodyChannels(**raw["channels"]) for raw in point["bodies"]]
+                rows = [row for (body, sphere, raw), t, mine in zip(bodies, terms, own[own_key])
+                        for row in oscillator_mode_rows(env, sphere, body, body.modes[0], mine, terms=t)]
                 done[key] = (folded, dominant_source((row[0], row[1]) for row in rows))
             except (GqsimError, TypeError):
                 done[key] = (None, "")
