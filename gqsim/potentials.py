@@ -95,6 +95,19 @@ def pair_energy_at(potential, separation_m) -> np.ndarray:
     return potential.energy_j(np.linalg.norm(vectors, axis=-1))
 
 
+def _own_or_distances(potential, separation_m, method_name: str):
+    """(vectors, the potential's own ``method_name`` at them or None, distances or None): an
+    orientation-dependent potential answers itself; a central one needs finite distances > 0."""
+    vectors = np.asarray(separation_m, dtype=float)
+    method = getattr(potential, method_name, None)
+    if method is not None:
+        return vectors, method(vectors), None
+    r = np.linalg.norm(vectors, axis=-1)
+    if np.any(r <= 0) or not np.all(np.isfinite(r)):
+        raise ValueError("pair separations must be finite and > 0 m")
+    return vectors, None, r
+
+
 def pair_gradient_at(potential, separation_m) -> np.ndarray:
     """dU/dr_i at separation vectors (..., 3) [m] -> (..., 3) [J/m]; the force on the second
     body is its negative.
@@ -102,13 +115,9 @@ def pair_gradient_at(potential, separation_m) -> np.ndarray:
     Central potentials: U'(r) n, n = r/|r| (chain rule, common practice); otherwise the
     potential's own ``gradient_from_vector``.
     """
-    vectors = np.asarray(separation_m, dtype=float)
-    method = getattr(potential, "gradient_from_vector", None)
-    if method is not None:
-        return method(vectors)
-    r = np.linalg.norm(vectors, axis=-1)
-    if np.any(r <= 0) or not np.all(np.isfinite(r)):
-        raise ValueError("pair separations must be finite and > 0 m")
+    vectors, own, r = _own_or_distances(potential, separation_m, "gradient_from_vector")
+    if own is not None:
+        return own
     return np.asarray(potential.radial_derivative(r, 1))[..., None] * vectors / r[..., None]
 
 
@@ -118,13 +127,9 @@ def pair_hessian_at(potential, separation_m) -> np.ndarray:
     Central potentials: H = U'' n n^T + (U'/r)(I - n n^T), n = r/|r| (chain rule,
     common practice); otherwise the potential's own ``hessian_from_vector``.
     """
-    vectors = np.asarray(separation_m, dtype=float)
-    method = getattr(potential, "hessian_from_vector", None)
-    if method is not None:
-        return method(vectors)
-    r = np.linalg.norm(vectors, axis=-1)
-    if np.any(r <= 0) or not np.all(np.isfinite(r)):
-        raise ValueError("pair separations must be finite and > 0 m")
+    vectors, own, r = _own_or_distances(potential, separation_m, "hessian_from_vector")
+    if own is not None:
+        return own
     n = vectors / r[..., None]
     nn = n[..., :, None] * n[..., None, :]
     d1 = np.asarray(potential.radial_derivative(r, 1))[..., None, None]
