@@ -110,19 +110,16 @@ class _Dynamics:
     drift: np.ndarray
     diffusion: np.ndarray
     tau: float
-    cov0: np.ndarray
     times: np.ndarray
 
 
-def _dynamics_of(base_data: dict, values: dict) -> _Dynamics:
+def _dynamics_of(data: dict) -> _Dynamics:
+    """The model of protocol mapping ``data`` (sweep values applied, see :func:`_applied`)."""
     from gqsim.oscillators.channels import build_channels
-    from gqsim.oscillators.model import build_model, initial_moments, symplectic_form
+    from gqsim.oscillators.model import build_model, symplectic_form
     from gqsim.oscillators.run import with_environment
     from gqsim.oscillators.setup import setup_from_protocol
 
-    data = _copy(base_data)
-    for path, value in values.items():
-        set_path(data, path, value.item() if isinstance(value, np.generic) else value)
     model = build_model(setup_from_protocol(with_environment(data)))
     dynamics = build_channels(model)
     if model.anharmonic or not model.is_gaussian or np.any(dynamics.measurement):
@@ -133,7 +130,7 @@ def _dynamics_of(base_data: dict, values: dict) -> _Dynamics:
         raise ValueError("non-uniform grid")
     drift = symplectic_form(2) @ model.stages[0].hamiltonian + dynamics.drift
     tau = (steps[0] if steps.size else 0.0) * model.scales.omega_unit_rad_s
-    return _Dynamics(model, drift, dynamics.diffusion, tau, initial_moments(model)[1], times)
+    return _Dynamics(model, drift, dynamics.diffusion, tau, times)
 
 
 def _copy(node):
@@ -456,10 +453,10 @@ def evaluate_gaussian_points(spec, points: np.ndarray) -> tuple[dict, np.ndarray
         members = np.asarray(members)
         group_values = values_of(members[0], ("model",))
         try:
-            group_dyn = _dynamics_of(base, group_values)
+            group_data = _applied(base, group_values)
+            group_dyn = _dynamics_of(group_data)
         except (GqsimError, ValueError):
-            group_dyn = None
-        group_data = _applied(base, group_values) if group_dyn is not None else None
+            group_data = group_dyn = None
         if group_dyn is not None and not swept:  # one model for the whole group
             drift[members], diffusion[members], tau[members] = group_dyn.drift, group_dyn.diffusion, group_dyn.tau
             omega_ref[members] = group_dyn.model.scales.omega_ref_rad_s
@@ -492,13 +489,13 @@ def evaluate_gaussian_points(spec, points: np.ndarray) -> tuple[dict, np.ndarray
             dyn = built.get(key)
             if dyn is None:
                 try:
-                    dyn = _dynamics_of(base, values_of(j, ("model", "array", "environment", "initial")))
+                    point_data = _applied(base, values_of(j, ("model", "array", "environment", "initial")))
+                    dyn = _dynamics_of(point_data)
                 except (GqsimError, ValueError):
                     single[j] = True  # the failure may be this point's initial state: not cached
                     continue
                 built[key] = dyn
-                noise_of[key] = _dominant_noise(_applied(base, values_of(j, ("model", "array", "environment"))),
-                                                dyn.model)
+                noise_of[key] = _dominant_noise(point_data, dyn.model)  # the initial state adds no noise
             noise[j] = noise_of[key]
             drift[j], diffusion[j], tau[j] = dyn.drift, dyn.diffusion, dyn.tau
             omega_ref[j] = dyn.model.scales.omega_ref_rad_s

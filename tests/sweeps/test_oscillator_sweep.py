@@ -199,7 +199,7 @@ def test_array_dynamics_equal_the_scalar_model_stage():
     gqsim.simulate runs): drift, diffusion, step and grid agree to 1e-12 relative for every
     array key at once, including quantum-optical damping in a warm bath and Caldeira-Leggett
     damping, and an axis along y for the second body."""
-    from gqsim.sweeps.batched_gaussian import _dynamics_of, array_dynamics
+    from gqsim.sweeps.batched_gaussian import _applied, _dynamics_of, array_dynamics
 
     data = _pair().to_dict()
     data["bodies"][0]["channels"] = {"bath_temperature_k": 1e-9, "localisation_per_m2_s": 3e25,
@@ -222,7 +222,7 @@ def test_array_dynamics_equal_the_scalar_model_stage():
     drift, diffusion, tau, times, omega_ref, valid, heated = array_dynamics(model, overrides, count)
     assert valid.all() and heated.all()
     for j in range(count):
-        dyn = _dynamics_of(base, {path: float(v[j]) for path, v in overrides.items()})
+        dyn = _dynamics_of(_applied(base, {path: float(v[j]) for path, v in overrides.items()}))
         for name, got, want in (("drift", drift[j], dyn.drift), ("diffusion", diffusion[j], dyn.diffusion)):
             # element by element: the gravitational couplings are ~1e-9 of the trap terms
             np.testing.assert_allclose(got, want, rtol=1e-12, atol=0, err_msg=name)
