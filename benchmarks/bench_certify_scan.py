@@ -1,4 +1,4 @@
-"""Per-time witness design (gqsim.statistics.plan_ppt_scan) vs a plain QuTiP loop, same run.
+"""Per-time witness design (gqsim.studies.certification.statistics.plan_ppt_scan) vs a plain QuTiP loop, same run.
 
 Two dephased side-by-side qubits (physics-references Sec. 1.8 model, omega = 0.237527 rad/s,
 gamma = 0.05 1/s) on 1000 grid times. gqsim designs the optimal PPT witness at every time
@@ -17,7 +17,7 @@ import time
 import numpy as np
 import qutip
 
-from gqsim.statistics import plan_ppt_scan
+from gqsim.studies.certification.statistics import plan_ppt_scan
 
 N_POINTS = 1000
 OMEGA, GAMMA = 0.237527, 0.05

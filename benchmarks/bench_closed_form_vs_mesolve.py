@@ -17,9 +17,9 @@ import numpy as np
 import qutip
 
 import gqsim
-from gqsim.channels import body_channel
-from gqsim.engines import closed_form
-from gqsim.superposition_run import _closed_form_series
+from gqsim.superposition.channels import body_channel
+from gqsim.superposition.solvers import branch_phases
+from gqsim.superposition.run import _closed_form_series
 
 N_POINTS = 10_000
 NAMES = ("log_negativity", "negativity", "concurrence", "witness_lab", "witness_optimised", "purity")
@@ -37,9 +37,9 @@ def protocol():
 
 def ours(model, channels, times):
     """What gqsim.simulate does for this protocol: exact phases and decay, the states, and
-    every measure from the closed forms of gqsim.measures_closed_form."""
-    total, ga, gb = closed_form.branch_parameters(model, channels, times)
-    states = closed_form.states_from_parameters(model, total, ga, gb)
+    every measure from the closed forms of gqsim.superposition.closed_form_measures."""
+    total, ga, gb = branch_phases.branch_parameters(model, channels, times)
+    states = branch_phases.states_from_parameters(model, total, ga, gb)
     series = _closed_form_series(model.setup, total, ga, gb, states)
     return states, series
 

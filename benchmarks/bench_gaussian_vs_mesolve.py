@@ -35,9 +35,9 @@ from scipy.constants import G  # noqa: E402
 
 from gqsim.oscillators import measures  # noqa: E402
 from gqsim.oscillators.channels import build_channels  # noqa: E402
-from gqsim.oscillators.engines_gaussian import evolve_gaussian  # noqa: E402
+from gqsim.oscillators.solve_moments import evolve_gaussian  # noqa: E402
 from gqsim.oscillators.run import build, simulate_model  # noqa: E402
-from gqsim.protocol import parse_protocol  # noqa: E402
+from gqsim.protocol.reader import parse_protocol  # noqa: E402
 
 LAM, GAMMA, N_TH, POINTS = 0.1, 0.05, 1.0, 200
 MASS, DIST = 1.0, 0.05

@@ -21,9 +21,10 @@ from pathlib import Path
 
 import numpy as np
 
-from gqsim.protocol import load_protocol, parse_protocol
-from gqsim.pipeline import simulate
-from gqsim.sweeps import batched, parse_sweep, point_protocol, run_sweep
+from gqsim.protocol.reader import load_protocol, parse_protocol
+from gqsim.families import simulate
+from gqsim.studies.surveys import parse_sweep, point_protocol, run_sweep
+from gqsim.superposition import batched
 
 ROOT = Path(__file__).resolve().parents[1]
 TIME_POINTS = 200
@@ -64,7 +65,7 @@ def _oscillator_base():
 
 def _oscillator_map(axes, base=None) -> tuple[float, float]:
     """Points/s of the batched Gaussian route and of gqsim.simulate on a 20 x 20 map."""
-    from gqsim.sweeps.runner import compute_points
+    from gqsim.studies.surveys.runner import compute_points
 
     spec = parse_sweep({"sweep_version": 1, "base_protocol": "unused", "axes": axes}, base=base or _oscillator_base())
     points = np.arange(spec.n_points)

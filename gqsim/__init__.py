@@ -11,27 +11,27 @@ Notebook use in three lines::
 
 from gqsim._version import __version__
 from gqsim.errors import ConvergenceError, EngineError, GqsimError, PhysicsError, ProtocolError
-from gqsim.measures import concurrence, log_negativity, negativity, partial_transpose, purity
-from gqsim.model import entangling_rate_estimate, mass_for_entangling_rate
-from gqsim.pipeline import build, simulate
-from gqsim.protocol import Protocol, load_protocol, parse_protocol
+from gqsim.physics.measures import concurrence, log_negativity, negativity, partial_transpose, purity
+from gqsim.superposition.model import entangling_rate_estimate, mass_for_entangling_rate
+from gqsim.families import build, simulate
+from gqsim.protocol.reader import Protocol, load_protocol, parse_protocol
 from gqsim.references import REFERENCES, cite
-from gqsim.report import plot_measures, summary_table, write_outputs
-from gqsim.result import Result
-from gqsim.witnesses import optimal_witness_frame, spin_witness_lab, spin_witness_optimised
+from gqsim.report.tables import plot_measures, summary_table, write_outputs
+from gqsim.record import Result
+from gqsim.physics.witnesses import optimal_witness_frame, spin_witness_lab, spin_witness_optimised
 
 # Entry points of the later stages, imported on first use so that `import gqsim` (and every
 # CLI command) does not pay for xarray, zarr or the oscillator engines it does not need.
 _LAZY = {
-    "CertifyOptions": "gqsim.certify",
-    "certify_result": "gqsim.certify",
-    "read_certify_file": "gqsim.certify",
-    "force_budget": "gqsim.force_budget",
-    "noise_budget": "gqsim.environment.budget",
-    "tolerable_limit": "gqsim.environment.budget",
-    "load_sweep": "gqsim.sweeps",
-    "run_sweep": "gqsim.sweeps",
-    "compare_routes": "gqsim.oscillators.compare",
+    "CertifyOptions": "gqsim.studies.certification.plan",
+    "certify_result": "gqsim.studies.certification.plan",
+    "read_certify_file": "gqsim.studies.certification.plan",
+    "force_budget": "gqsim.studies.forces",
+    "noise_budget": "gqsim.studies.decoherence",
+    "tolerable_limit": "gqsim.studies.decoherence",
+    "load_sweep": "gqsim.studies.surveys",
+    "run_sweep": "gqsim.studies.surveys",
+    "compare_routes": "gqsim.studies.compare",
 }
 
 

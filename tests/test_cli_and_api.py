@@ -11,7 +11,7 @@ from click.testing import CliRunner
 
 import gqsim
 from gqsim.cli import cli
-from gqsim.report import OUTPUT_FILES
+from gqsim.report.tables import OUTPUT_FILES
 
 ROOT = Path(__file__).resolve().parent.parent
 PROTOCOLS = sorted(p for p in (ROOT / "protocols").glob("*.toml") if not p.name.startswith("sweep-"))

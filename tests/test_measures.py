@@ -6,8 +6,8 @@ import qutip
 from hypothesis import given
 from hypothesis import strategies as st
 
-from gqsim.measures import concurrence, log_negativity, negativity, partial_transpose, purity
-from gqsim.witnesses import correlation_matrix, spin_witness_lab, spin_witness_optimised
+from gqsim.physics.measures import concurrence, log_negativity, negativity, partial_transpose, purity
+from gqsim.physics.witnesses import correlation_matrix, spin_witness_lab, spin_witness_optimised
 from tests.superposition.helpers import cz_phase_state, werner
 
 ROUNDOFF = 1e-12  # double-precision eigen-solver accuracy on 4x4 / 9x9 matrices, with margin

@@ -12,7 +12,7 @@ Stages, one module each (data flows down the list):
 ``engines_fock``     truncated Fock-basis cross-check (QuTiP behind ``qutip_adapter``)
 ``measures``         logarithmic negativity, Simon, Duan, purity, mutual information
 ``analytic``         closed-form companions (coupling g, quench bound, thermal threshold, free fall)
-``run``              protocol -> model -> engine -> :class:`gqsim.result.Result`
+``run``              protocol -> model -> engine -> :class:`gqsim.record.Result`
 ``compare``          the oscillator and superposition routes side by side
 """
 

@@ -41,7 +41,7 @@ from scipy.constants import hbar
 
 from gqsim.errors import PhysicsError
 from gqsim.oscillators.setup import AXES, Body, Setup
-from gqsim.potentials import NewtonianGravity, PairPotential, pair_gradient_at, pair_hessian_at
+from gqsim.physics.potentials import NewtonianGravity, PairPotential, pair_gradient_at, pair_hessian_at
 
 __all__ = [
     "Scales", "StageModel", "AnharmonicTerm", "OscillatorModel", "PairPotentialFactory",
@@ -69,11 +69,11 @@ _EM_KEYS = ("charge_c", "dipole_c_m", "relative_permittivity", "dispersion_reson
 def interactions_between(table):
     """Factory for the potentials named by a validated ``[interactions]`` table, body pair by body pair.
 
-    Delegates to :func:`gqsim.confounders.potentials_from_tables` (gravity first; Casimir-Polder,
+    Delegates to :func:`gqsim.physics.electromagnetic.potentials_from_tables` (gravity first; Casimir-Polder,
     Coulomb, dipole terms; a conducting screen removes the electromagnetic ones), reading each
     body's mass, radius and electromagnetic keys.
     """
-    from gqsim.confounders import potentials_from_tables
+    from gqsim.physics.electromagnetic import potentials_from_tables
 
     def make(a: Body, b: Body):
         tables = [{k: getattr(body, k) for k in _EM_KEYS if getattr(body, k) is not None} for body in (a, b)]
@@ -126,7 +126,7 @@ def pair_hessian(potential: PairPotential, separation_m: np.ndarray) -> tuple[np
     Central potentials: Hess = V''(d) n n^T + V'(d)/d (I - n n^T) (second-order Taylor expansion
     of V(|R + u|), Ch. 6 of [Goldstein2002]); orientation-dependent ones (fixed dipoles) use
     their own gradient and Hessian in the separation vector. Both through
-    :func:`gqsim.potentials.pair_gradient_at` / :func:`gqsim.potentials.pair_hessian_at`.
+    :func:`gqsim.physics.potentials.pair_gradient_at` / :func:`gqsim.physics.potentials.pair_hessian_at`.
 
     Parameters
     ----------

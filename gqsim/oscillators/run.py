@@ -1,7 +1,7 @@
 """Run stage for trapped oscillators: protocol -> setup -> model -> channels -> engine -> Result.
 
 ``build(protocol)`` validates the physics down to the model; ``simulate(protocol, engine=...)``
-returns a :class:`gqsim.result.Result` whose series are named as the trade spells them
+returns a :class:`gqsim.record.Result` whose series are named as the trade spells them
 (``log_negativity`` in nats, ``simon``, ``simon_min_eigenvalue``, ``duan``, ``purity``,
 ``mutual_information``, ``position_spread_m[<mode>]`` ...).
 """
@@ -17,12 +17,12 @@ import numpy as np
 from gqsim.errors import PhysicsError, ProtocolError
 from gqsim.oscillators import analytic, measures
 from gqsim.oscillators.channels import OpenDynamics, build_channels
-from gqsim.oscillators.engines_gaussian import (CONDITION_LIMIT, condition_numbers, evolve_gaussian,
+from gqsim.oscillators.solve_moments import (CONDITION_LIMIT, condition_numbers, evolve_gaussian,
                                                  evolve_gaussian_precise)
 from gqsim.oscillators.model import OscillatorModel, build_model
 from gqsim.oscillators.setup import setup_from_protocol
-from gqsim.protocol import Protocol, load_protocol
-from gqsim.result import Provenance, Result, entangled_windows, package_versions
+from gqsim.protocol.reader import Protocol, load_protocol
+from gqsim.record import Provenance, Result, entangled_windows, package_versions
 
 __all__ = ["build", "simulate", "simulate_model", "UNITS"]
 
@@ -68,12 +68,12 @@ def build(protocol) -> OscillatorModel:
 def with_environment(data: Mapping[str, Any]) -> Mapping[str, Any]:
     """The protocol mapping with an ``[environment]`` table folded into each body's channels
     (gas as Caldeira-Leggett damping at the gas temperature; photon, laser and extra
-    localisation added to ``localisation_per_m2_s``; see gqsim.environment.budget). ``data`` is
+    localisation added to ``localisation_per_m2_s``; see gqsim.studies.decoherence). ``data`` is
     not modified; without an environment it is returned as is. Every route from a protocol to
     an oscillator model (``build`` here, the batched sweep route) goes through this."""
     if data.get("environment") is None:
         return data
-    from gqsim.environment.budget import _oscillator_bodies, oscillator_channel_table
+    from gqsim.studies.decoherence import _oscillator_bodies, oscillator_channel_table
 
     out = dict(data)
     table = out.pop("environment")
@@ -121,7 +121,7 @@ def simulate_model(model: OscillatorModel, *, engine: str | None = None, protoco
         series, summary = gaussian_series(model, traj.means, traj.covariances, traj.interaction_covariances)
         summary["gaussian_path"] = "interaction frame, extended precision" if notes else "float64"
     else:
-        from gqsim.oscillators.engines_fock import evolve_fock
+        from gqsim.oscillators.solve_number_basis import evolve_fock
 
         fock = evolve_fock(model, dynamics)
         series, summary = fock.series, dict(fock.summary)

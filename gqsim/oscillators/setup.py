@@ -16,7 +16,7 @@ import numpy as np
 from scipy.constants import hbar, k as k_B
 
 from gqsim.errors import PhysicsError, ProtocolError
-from gqsim.materials import material as lookup_material
+from gqsim.physics.materials import material as lookup_material
 
 __all__ = [
     "AXES", "InitialState", "BodyChannels", "Body", "Stage", "SolverOptions", "Setup",
@@ -202,7 +202,7 @@ class Body:
     channels : :class:`BodyChannels`
     charge_c, dipole_c_m, relative_permittivity, dispersion_resonance_rad_s : electromagnetic
         properties read by the non-gravitational pair potentials of ``[interactions]``
-        (:mod:`gqsim.confounders`); None when not given
+        (:mod:`gqsim.physics.electromagnetic`); None when not given
     """
 
     label: str
@@ -330,7 +330,7 @@ class Setup:
     times_s : output time grid [s], strictly increasing, within [0, total duration]
     side_a : labels of the bodies on side A of the reported bipartition
     potentials : names of the pair potentials acting between every pair (``"gravity"``)
-    interactions : the validated ``[interactions]`` table (:mod:`gqsim.confounders`), or None for
+    interactions : the validated ``[interactions]`` table (:mod:`gqsim.physics.electromagnetic`), or None for
         gravity alone
     solver : :class:`SolverOptions`
     title : free text from the protocol
@@ -396,7 +396,7 @@ class Setup:
         return float(sum(s.duration_s for s in self.stages))
 
 
-#: pair potentials a protocol may name in ``[interactions].include`` (built by gqsim.confounders).
+#: pair potentials a protocol may name in ``[interactions].include`` (built by gqsim.physics.electromagnetic).
 POTENTIAL_NAMES = ("gravity", "casimir_polder", "london_van_der_waals", "coulomb", "charge_induced_dipole",
                    "dipole_dipole", "dipole_induced_dipole")
 

@@ -9,7 +9,7 @@ from hypothesis import given
 from hypothesis import strategies as st
 from scipy.constants import G, e, epsilon_0, hbar
 
-from gqsim.confounders import (
+from gqsim.physics.electromagnetic import (
     Coulomb,
     DipoleDipole,
     RetardedCasimirPolder,
@@ -22,7 +22,7 @@ from gqsim.confounders import (
     superposition_attribution,
 )
 from gqsim.errors import PhysicsError, ProtocolError
-from gqsim.potentials import NewtonianGravity
+from gqsim.physics.potentials import NewtonianGravity
 
 QUOTED_6SF = 5e-6  # shared references quote these [DERIVED] values to 6 significant figures
 QUOTED_4SF = 5e-4
@@ -203,10 +203,10 @@ def test_bad_attribution_input():
 
 def test_attribution_phases_agree_with_the_superposition_model_builder():
     # Consistency between two implementations of phi_ab = -(1/hbar) int E_ab dt (ours and
-    # gqsim.model's composite quadrature), with split and recombine ramps; guards the wiring.
-    from gqsim.model import SuperpositionModel
-    from gqsim.protocol import parse_protocol
-    from gqsim.setup import build_superposition_setup
+    # gqsim.superposition.model's composite quadrature), with split and recombine ramps; guards the wiring.
+    from gqsim.superposition.model import SuperpositionModel
+    from gqsim.protocol.reader import parse_protocol
+    from gqsim.superposition.setup import build_superposition_setup
 
     data = {"schema_version": 1, "family": "superposition",
             "arrangement": {"style": "in_line", "centre_distance_m": 450e-6, "branch_span_m": 250e-6},
@@ -227,7 +227,7 @@ def test_attribution_phases_agree_with_the_superposition_model_builder():
 def test_screen_image_energies_are_the_1948_plate_law_and_the_image_charge():
     from scipy.constants import c
 
-    from gqsim.confounders import ConductingScreen, screen_energy_j
+    from gqsim.physics.electromagnetic import ConductingScreen, screen_energy_j
 
     screen = ConductingScreen(point_m=[0, 0, 0], normal=[2.0, 0, 0], thickness_m=2e-6)
     z = np.array([[51e-6, 3e-6, 0], [-101e-6, 0, 7e-6]])  # gaps 50 um and 100 um to the faces
@@ -260,7 +260,7 @@ def test_local_screen_phases_never_entangle():
 def test_screened_in_line_budget_reports_local_phases():
     from scipy.constants import c
 
-    from gqsim.force_budget import superposition_budget
+    from gqsim.studies.forces import superposition_budget
 
     data = {"schema_version": 1, "family": "superposition",
             "arrangement": {"style": "in_line", "centre_distance_m": 300e-6, "branch_span_m": 100e-6},
@@ -301,7 +301,7 @@ def test_log_negativity_bounds_and_local_invariance(phases, moduli):
 
 
 def test_regime_notes_flag_laws_used_outside_their_range():
-    from gqsim.confounders import LondonVanDerWaals
+    from gqsim.physics.electromagnetic import LondonVanDerWaals
 
     close = superposition_attribution([GRAV, RetardedCasimirPolder(radius_a_m=20e-6, radius_b_m=20e-6,
                                                                    permittivity_a=5.7, permittivity_b=5.7)],

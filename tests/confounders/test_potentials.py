@@ -8,7 +8,7 @@ from scipy.constants import G, c, e, epsilon_0, hbar
 from scipy.constants import k as k_B
 from scipy.integrate import quad
 
-from gqsim.confounders import (
+from gqsim.physics.electromagnetic import (
     ChargeInducedDipole,
     Coulomb,
     DipoleDipole,
@@ -24,7 +24,7 @@ from gqsim.confounders import (
     smallest_separation_below_m,
 )
 from gqsim.errors import PhysicsError, ProtocolError
-from gqsim.potentials import NewtonianGravity, pair_gradient_at
+from gqsim.physics.potentials import NewtonianGravity, pair_gradient_at
 
 # Check values are [DERIVED] in ../shared/physics-references.md and quoted to 4 significant
 # figures there, so they are compared at half a unit of the 4th figure.
@@ -366,7 +366,7 @@ def test_room_temperature_field_moves_the_safe_distance_out():
 def test_every_cited_key_resolves_in_the_reference_registry():
     import re
 
-    import gqsim.confounders as mod
+    import gqsim.physics.electromagnetic as mod
     from gqsim.references import REFERENCES
 
     own = [obj for obj in vars(mod).values() if callable(obj) and getattr(obj, "__module__", "") == mod.__name__]

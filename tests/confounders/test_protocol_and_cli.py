@@ -11,7 +11,7 @@ from click.testing import CliRunner
 from scipy.constants import e
 
 from gqsim.cli import cli
-from gqsim.confounders import (
+from gqsim.physics.electromagnetic import (
     ChargeInducedDipole,
     Coulomb,
     DipoleDipole,
@@ -21,9 +21,9 @@ from gqsim.confounders import (
     with_interaction_keys,
 )
 from gqsim.errors import PhysicsError, ProtocolError
-from gqsim.force_budget import force_budget, superposition_budget
-from gqsim.potentials import NewtonianGravity
-from gqsim.protocol import schema_for
+from gqsim.studies.forces import force_budget, superposition_budget
+from gqsim.physics.potentials import NewtonianGravity
+from gqsim.protocol.reader import schema_for
 
 PROTOCOLS = Path(__file__).resolve().parents[2] / "protocols"
 QUOTED_6SF = 5e-6
@@ -143,7 +143,7 @@ def test_cli_safe_gap():
 def test_factory_for_pairwise_model_builders_reads_body_objects():
     from types import SimpleNamespace
 
-    from gqsim.confounders import potential_factory
+    from gqsim.physics.electromagnetic import potential_factory
 
     a = SimpleNamespace(mass_kg=1e-14, radius_m=1e-6, material="diamond", charge_c=e)
     b = SimpleNamespace(mass_kg=2e-14, radius_m=2e-6, material="silica", charge_c=-e)
@@ -159,7 +159,7 @@ def test_factory_for_pairwise_model_builders_reads_body_objects():
 
 
 def test_field_temperature_selects_the_thermal_casimir_polder():
-    from gqsim.confounders import ThermalCasimirPolder
+    from gqsim.physics.electromagnetic import ThermalCasimirPolder
 
     bodies = [{"material": "diamond"}, {"material": "diamond"}]
     warm = potentials_from_tables({"include": ["casimir_polder"], "field_temperature_k": 4.0}, bodies,
@@ -241,7 +241,7 @@ def test_oscillator_budget_screen_and_dipoles():
 def test_cli_safe_gap_for_entangling_phases_is_radius_independent():
     # The CLI computes at R = 1 um; both entangling phases scale as R^6, so R = 3 um diamonds
     # (built here directly) must give the same centre distance (root finding rtol 1e-12).
-    from gqsim.confounders import smallest_centre_distance_for_phase_m
+    from gqsim.physics.electromagnetic import smallest_centre_distance_for_phase_m
 
     out = CliRunner().invoke(cli, ["forces", "safe-gap", "--material", "diamond", "--style", "in_line",
                                    "--branch-span-m", "250e-6"])

@@ -11,10 +11,10 @@ import pytest
 from click.testing import CliRunner
 
 from gqsim.cli import cli
-from gqsim.environment import rates
-from gqsim.environment.budget import (Certificate, plot_budget, simulate_with_environment, split_environment,
+from gqsim.physics.environment import rates
+from gqsim.studies.decoherence import (Certificate, plot_budget, simulate_with_environment, split_environment,
                                       superposition_noise_budget, tolerable_limit)
-from gqsim.environment.parameters import GAS_SPECIES
+from gqsim.physics.environment.parameters import GAS_SPECIES
 from gqsim.errors import ProtocolError
 
 HERE = Path(__file__).resolve().parent
@@ -138,16 +138,16 @@ def test_cli_bad_environment_is_one_line_exit_2(demo, tmp_path):
 
 
 def test_without_environment_the_run_equals_the_standard_pipeline():
-    # guards simulate_with_environment against drifting from gqsim.pipeline.simulate
-    from gqsim.pipeline import simulate
-    from gqsim.protocol import load_protocol
+    # guards simulate_with_environment against drifting from gqsim.families.simulate
+    from gqsim.families import simulate
+    from gqsim.protocol.reader import load_protocol
 
     proto = load_protocol(HERE.parent.parent / "protocols" / "strong-dephasing.toml")
     ours = simulate_with_environment(proto, None)
     theirs = simulate(proto)
     for name, values in theirs.series.items():
         # same engine and inputs; measures differ only by round-off, which the concurrence's square roots
-        # of eigenvalues lift to ~1e-8 (gqsim.superposition_run.CONCURRENCE_SIGNAL_FLOOR = 1e-7)
+        # of eigenvalues lift to ~1e-8 (gqsim.superposition.run.CONCURRENCE_SIGNAL_FLOOR = 1e-7)
         np.testing.assert_allclose(ours.series[name], values, rtol=0, atol=1e-7)
 
 
@@ -169,10 +169,10 @@ def test_environment_channel_equals_the_same_rate_given_as_a_raw_dephasing_table
 
 
 def test_wired_schema_delegates_to_the_standard_pipeline_with_the_same_result(demo, monkeypatch):
-    # Once the family schema carries the fragment, gqsim.pipeline.simulate must apply the environment
+    # Once the family schema carries the fragment, gqsim.families.simulate must apply the environment
     # itself; its run must equal the run with the environment channels added here.
-    import gqsim.protocol as protocol_module
-    from gqsim.environment.parameters import with_environment_key
+    import gqsim.protocol.reader as protocol_module
+    from gqsim.physics.environment.parameters import with_environment_key
 
     proto, table = split_environment(demo)
     here = simulate_with_environment(proto, table)
@@ -192,8 +192,8 @@ def test_spin_dephasing_limit_equals_the_early_time_analytic_threshold():
     # values) is W ~ T_xx + |T_yz| = exp(-2 gamma t)(1 + cos theta)/2 + exp(-gamma t) sin(theta)/2
     #   ~ 1 - 2 gamma t + omega t / 2   (theta = omega t),
     # so some early time certifies entanglement iff gamma < |omega|/4. The root-found 1/T2 must sit there.
-    from gqsim.protocol import load_protocol
-    from gqsim.superposition_run import build
+    from gqsim.protocol.reader import load_protocol
+    from gqsim.superposition.run import build
 
     path = HERE.parent.parent / "protocols" / "inline-qubits.toml"
     omega = build(load_protocol(path)).analytic_entangling_rate_rad_s()
@@ -205,7 +205,7 @@ def test_spin_dephasing_limit_equals_the_early_time_analytic_threshold():
 def test_rule_of_thumb_estimate_is_reported_next_to_the_simulated_limit(demo):
     # the rule of thumb puts each body's rate at |omega|/2; the early-time analysis above shows the witness
     # needs |omega|/4 per body, so with one dominant linear source the estimate is twice the simulated limit
-    from gqsim.environment.budget import rule_of_thumb_limit
+    from gqsim.studies.decoherence import rule_of_thumb_limit
 
     estimate = rule_of_thumb_limit(demo, "pressure")
     limit = tolerable_limit(demo, "pressure")

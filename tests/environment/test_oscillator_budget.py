@@ -10,13 +10,13 @@ import pytest
 from scipy.constants import Boltzmann as k_B
 from scipy.constants import hbar
 
-from gqsim.environment import rates
-from gqsim.environment.budget import (oscillator_noise_budget, simulate_with_environment, split_environment,
+from gqsim.physics.environment import rates
+from gqsim.studies.decoherence import (oscillator_noise_budget, simulate_with_environment, split_environment,
                                       tolerable_limit)
-from gqsim.environment.parameters import GAS_SPECIES
+from gqsim.physics.environment.parameters import GAS_SPECIES
 from gqsim.errors import PhysicsError
-from gqsim.pipeline import simulate
-from gqsim.protocol import parse_protocol
+from gqsim.families import simulate
+from gqsim.protocol.reader import parse_protocol
 
 DEMO = Path(__file__).resolve().parents[2] / "protocols" / "brackenfold-gas.toml"
 RADIUS, RHO = 4.5e-4, 2200.0

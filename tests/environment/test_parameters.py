@@ -4,10 +4,10 @@ import jsonschema
 import pytest
 from scipy.constants import atomic_mass
 
-from gqsim.environment import Environment, Gas, Laser, Sphere, ThermalRadiation, environment_from_table
-from gqsim.environment.budget import split_environment
-from gqsim.environment.parameters import GAS_SPECIES, ExtraRate, schema_fragment, sphere_from_body_table
-from gqsim.environment.sources import thermal_permittivity
+from gqsim.physics.environment import Environment, Gas, Laser, Sphere, ThermalRadiation, environment_from_table
+from gqsim.studies.decoherence import split_environment
+from gqsim.physics.environment.parameters import GAS_SPECIES, ExtraRate, schema_fragment, sphere_from_body_table
+from gqsim.physics.environment.sources import thermal_permittivity
 from gqsim.errors import PhysicsError, ProtocolError
 
 FULL_TABLE = {
@@ -112,8 +112,8 @@ def test_sphere_radius_from_mass_and_material_density():
 def test_fragment_wires_into_both_family_schemas(family, monkeypatch):
     # How the lead wires the fragment: properties.environment = fragment. After wiring, parse_protocol accepts
     # the table itself and reports bad values with the same one-line wording.
-    import gqsim.protocol as protocol_module
-    from gqsim.environment.parameters import with_environment_key
+    import gqsim.protocol.reader as protocol_module
+    from gqsim.physics.environment.parameters import with_environment_key
 
     original = protocol_module.schema_for
     monkeypatch.setattr(protocol_module, "schema_for", lambda fam, version=1: with_environment_key(original(fam, version)))

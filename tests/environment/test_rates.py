@@ -13,7 +13,7 @@ from scipy.constants import Boltzmann as k_B
 from scipy.constants import atomic_mass, c, hbar
 from scipy.integrate import dblquad
 
-from gqsim.environment import rates
+from gqsim.physics.environment import rates
 
 #: §3 quotes four significant digits: half a unit in the 4th digit is <= 5e-4 relative.
 QUOTED_DIGITS = 5e-4

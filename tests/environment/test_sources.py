@@ -9,12 +9,12 @@ from scipy.constants import Boltzmann as k_B
 from scipy.constants import atomic_mass, hbar
 from scipy.special import zeta
 
-from gqsim.channels import SeparationSquaredDephasing, decay_exponents
-from gqsim.environment import (Environment, ExtraRate, Gas, Laser, Sphere, ThermalRadiation, branch_decoherence,
+from gqsim.superposition.channels import SeparationSquaredDephasing, decay_exponents
+from gqsim.physics.environment import (Environment, ExtraRate, Gas, Laser, Sphere, ThermalRadiation, branch_decoherence,
                                environment_sources, oscillator_terms, rates)
-from gqsim.environment.sources import EnvironmentDephasing, Source
-from gqsim.environment.thermal_photons import ThermalPhotonDephasing
-from gqsim.setup import Body, Timing
+from gqsim.physics.environment.sources import EnvironmentDephasing, Source
+from gqsim.physics.environment.thermal_photons import ThermalPhotonDephasing
+from gqsim.superposition.setup import Body, Timing
 
 IDENTITY = 1e-12  # closed-form identities: round-off only
 SPHERE = Sphere(label="Tern", radius_m=1e-6, mass_kg=2200 * 4 / 3 * math.pi * 1e-18, thermal_permittivity=3.8 + 0.1j)
@@ -98,7 +98,7 @@ def test_constant_extras_enter_superpositions_but_not_oscillators():
 
 def test_moving_three_branch_decay_matches_mesolve_with_time_dependent_jump_operators():
     # Issue check: time-dependent branch paths. Split 0 -> full offsets (linear), hold, recombine; the closed-form
-    # engine's exponent int F(Delta(t)) dt (gqsim.channels.decay_exponents with our channel's exact segment
+    # engine's exponent int F(Delta(t)) dt (gqsim.superposition.channels.decay_exponents with our channel's exact segment
     # integrals) vs QuTiP mesolve with jump operators that follow the moving positions:
     #   localisation: L = sqrt(2 Lambda) s(t) Z          (D[L] gives -Lambda (z_a - z_b)^2 s^2 rho_ab)
     #   photon kicks: L = sqrt(w) diag(exp(i q s(t) z_b)) (absorbed thermal photons, as in test_thermal_photons)

@@ -20,8 +20,8 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 from scipy.special import zeta
 
-from gqsim.environment import rates
-from gqsim.environment.thermal_photons import ThermalPhotonDephasing, small_separation_coefficient, universal_decoherence
+from gqsim.physics.environment import rates
+from gqsim.physics.environment.thermal_photons import ThermalPhotonDephasing, small_separation_coefficient, universal_decoherence
 
 #: table interpolation: cubic Hermite in (ln u, ln g) with 60 nodes per decade; measured error ~2e-8
 TABLE_RTOL = 1e-7
@@ -149,7 +149,7 @@ def test_path_integral_of_g_matches_adaptive_quadrature(kind, a, b):
     # (epsrel 1e-12, with a breakpoint at u = 1 where the knee of g sits)
     from scipy.integrate import quad
 
-    from gqsim.environment.thermal_photons import integral_of_universal_decoherence
+    from gqsim.physics.environment.thermal_photons import integral_of_universal_decoherence
 
     points = [p for p in (1e-3, 1.0, 100.0) if a < p < b]
     ref = quad(lambda v: float(universal_decoherence(kind, np.array([v]))[0]), a, b, epsabs=0, epsrel=1e-12,

@@ -6,8 +6,8 @@ import numpy as np
 import pytest
 from scipy.constants import atomic_mass
 
-from gqsim.environment import Environment, Gas, Laser, Sphere, ThermalRadiation
-from gqsim.environment.thresholds import rate_limit, total_rate_per_s
+from gqsim.physics.environment import Environment, Gas, Laser, Sphere, ThermalRadiation
+from gqsim.physics.environment.thresholds import rate_limit, total_rate_per_s
 from gqsim.errors import ProtocolError
 
 SPHERE = Sphere(radius_m=1e-6, mass_kg=1.4703e-14, thermal_permittivity=5.7 + 1e-3j)
@@ -27,7 +27,7 @@ def test_pressure_at_target_rate_is_the_linear_inversion():
 def test_temperature_at_target_rate_follows_the_power_laws_in_the_lambda_regime():
     # At Delta = 10 nm (u ~ 2e-5) F = Lambda Delta^2: absorption ~ T^6, scattering ~ T^9 (shared §3.2), emission
     # held at the internal temperature. The rate reached at 8 K follows from the 4 K parts; invert it.
-    from gqsim.environment import branch_decoherence
+    from gqsim.physics.environment import branch_decoherence
 
     env = Environment(temperature_k=4.0, internal_temperature_k=4.0)
     sep = 1e-8

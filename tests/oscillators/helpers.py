@@ -7,7 +7,7 @@ import math
 
 from scipy.constants import G
 
-from gqsim.protocol import parse_protocol
+from gqsim.protocol.reader import parse_protocol
 
 
 def pair(*, mass_kg=1.0, distance_m=0.05, trap_hz=None, lam=None, duration_s=None, periods=3.0,

@@ -9,7 +9,7 @@ from click.testing import CliRunner
 
 from gqsim.cli import cli
 from gqsim.oscillators import analytic
-from gqsim.oscillators.compare import compare_routes, shared_entangling_rate
+from gqsim.studies.compare import compare_routes, shared_entangling_rate
 from tests.oscillators.helpers import pair, protocol
 
 PROTOCOLS = Path(__file__).resolve().parents[2] / "protocols"

@@ -9,7 +9,7 @@ from scipy.constants import G, hbar, k as k_B
 
 from gqsim.errors import PhysicsError
 from gqsim.oscillators import simulate
-from gqsim.oscillators.engines_fock import TruncationWarning
+from gqsim.oscillators.solve_number_basis import TruncationWarning
 from gqsim.oscillators.run import build
 from tests.oscillators.helpers import pair, protocol
 

@@ -8,7 +8,7 @@ from scipy.constants import hbar, k as k_B
 from scipy.integrate import solve_ivp
 
 from gqsim.oscillators import measures, simulate
-from gqsim.oscillators.engines_gaussian import ground_state_covariance, van_loan
+from gqsim.oscillators.solve_moments import ground_state_covariance, van_loan
 from gqsim.oscillators.run import build
 from tests.oscillators.helpers import pair, protocol
 

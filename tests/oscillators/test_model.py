@@ -10,8 +10,8 @@ from scipy.constants import G, hbar
 from gqsim.errors import PhysicsError
 from gqsim.oscillators.model import build_model, radial_derivative, stiffness_matrix
 from gqsim.oscillators.setup import setup_from_protocol
-from gqsim.potentials import NewtonianGravity
-from gqsim.protocol import parse_protocol
+from gqsim.physics.potentials import NewtonianGravity
+from gqsim.protocol.reader import parse_protocol
 from tests.oscillators.helpers import pair
 
 # float64 rounding of Hessian sums of O(G m^2 / d^3) terms
@@ -158,7 +158,7 @@ def test_scaling_makes_the_coupling_dimensionless_lambda():
 
 
 def test_coulomb_pair_through_the_interactions_table():
-    # [interactions] include = ["gravity", "coulomb"] (gqsim.confounders): along the axis the Coulomb
+    # [interactions] include = ["gravity", "coulomb"] (gqsim.physics.electromagnetic): along the axis the Coulomb
     # Hessian gives |g| = q^2 / (4 pi eps0 d^3 m omega) (Coulomb's law, Jackson 1999 ch. 1; the pair-Hessian
     # expansion above); gravity adds 2 G m^2 x_zpf^2/(hbar d^3), negligible for ions
     from scipy.constants import e, epsilon_0
@@ -183,7 +183,7 @@ def test_fixed_dipoles_couple_transverse_modes_through_their_full_hessian():
     Checked against central differences of the total energy (gravity + dipole-dipole); the
     central-potential form V'' n n^T + V'/d (I - n n^T) misses the angular terms."""
     from gqsim.oscillators.run import build
-    from gqsim.potentials import pair_energy_at
+    from gqsim.physics.potentials import pair_energy_at
 
     m, d, f = 1e-12, 30e-6, 2e3
     data = pair(mass_kg=m, distance_m=d, trap_hz=f)
@@ -193,7 +193,7 @@ def test_fixed_dipoles_couple_transverse_modes_through_their_full_hessian():
         body["dipole_c_m"] = p
     data["interactions"] = {"include": ["gravity", "dipole_dipole"]}
     model = build(parse_protocol(data))
-    from gqsim.confounders import DipoleDipole
+    from gqsim.physics.electromagnetic import DipoleDipole
 
     dipole = DipoleDipole(dipole_a_c_m=dipoles[0], dipole_b_c_m=dipoles[1])
     gravity = NewtonianGravity(mass_a_kg=m, mass_b_kg=m)

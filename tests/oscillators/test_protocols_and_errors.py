@@ -8,7 +8,7 @@ import pytest
 from click.testing import CliRunner
 from scipy.constants import G
 
-from gqsim import pipeline
+from gqsim import families as pipeline
 from gqsim.cli import cli
 from gqsim.errors import PhysicsError, ProtocolError
 from gqsim.oscillators import simulate
@@ -71,7 +71,7 @@ def test_released_masses_match_the_shared_free_fall_values(r, expected):
 def test_precise_path_agrees_with_float64_where_both_are_accurate():
     # a mildly sheared run (condition ~1e3) computed both ways: the frame change is exact
     from gqsim.oscillators.channels import build_channels
-    from gqsim.oscillators.engines_gaussian import evolve_gaussian, evolve_gaussian_precise
+    from gqsim.oscillators.solve_moments import evolve_gaussian, evolve_gaussian_precise
     from gqsim.oscillators import measures
     from gqsim.oscillators.run import build
 
@@ -160,7 +160,7 @@ def test_cli_run_json_on_a_bundled_protocol():
 def test_plot_oscillators_returns_two_axes():
     import matplotlib.pyplot as plt
 
-    from gqsim.oscillators.plots import plot_oscillators
+    from gqsim.report.oscillator_plots import plot_oscillators
 
     result = simulate(protocol(pair(lam=1e-3, points=11)))
     top, bottom = plot_oscillators(result)

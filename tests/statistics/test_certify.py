@@ -9,7 +9,7 @@ import numpy as np
 import pytest
 from click.testing import CliRunner
 
-from gqsim.certify import (
+from gqsim.studies.certification.plan import (
     CertifyOptions,
     certify_result,
     options_from_mapping,
@@ -18,8 +18,8 @@ from gqsim.certify import (
 )
 from gqsim.cli import cli
 from gqsim.errors import ProtocolError
-from gqsim.result import Provenance, Result
-from gqsim.statistics import best_measurement_time
+from gqsim.record import Provenance, Result
+from gqsim.studies.certification.statistics import best_measurement_time
 from tests.statistics.stat_states import branch_phase_state, cz_plus_plus, dephased
 
 ROOT = Path(__file__).resolve().parents[2]
@@ -201,7 +201,7 @@ def test_repetitions_vary_smoothly_with_time():
 def test_reported_frames_and_expression_rebuild_the_witness():
     # An experimenter should be able to rebuild the measured operator from the JSON alone:
     # expression (gqsim syntax) in the reported local frames gives the reported value Tr(W rho).
-    from gqsim.witness_design import Witness, parse_witness
+    from gqsim.studies.certification.witness_design import Witness, parse_witness
 
     times = np.linspace(0.5, 12.0, 24)
     states, series = _dephased_scan(times)
@@ -221,9 +221,9 @@ def test_reported_frames_and_expression_rebuild_the_witness():
 
 def test_oscillator_covariances_come_from_the_run():
     """The Duan plan's covariances are the run's own lab-frame series (no second evolution),
-    equal to the exact Gaussian engine's (gqsim.oscillators.engines_gaussian) to rounding."""
+    equal to the exact Gaussian engine's (gqsim.oscillators.solve_moments) to rounding."""
     import gqsim
-    from gqsim.certify import oscillator_covariances
+    from gqsim.studies.certification.plan import oscillator_covariances
 
     proto = gqsim.load_protocol(Path(__file__).resolve().parents[2] / "protocols" / "osc-squeezed-pair.toml")
     result = gqsim.simulate(proto)

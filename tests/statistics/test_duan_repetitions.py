@@ -7,7 +7,7 @@ import pytest
 from scipy import stats
 
 from gqsim.errors import ProtocolError
-from gqsim.statistics import duan_plan, sample_variance_sd
+from gqsim.studies.certification.statistics import duan_plan, sample_variance_sd
 
 ATOL = 1e-12  # closed-form covariance entries of size O(e^{2r}) in float64
 
@@ -108,7 +108,7 @@ def test_bad_duan_inputs_are_one_line_errors(kwargs, key):
 
 # ---- log-negativity from an estimated covariance matrix --------------------------------
 
-from gqsim.statistics import (  # noqa: E402
+from gqsim.studies.certification.statistics import (  # noqa: E402
     COVARIANCE_SETTINGS,
     covariance_from_moments,
     log_negativity_plan,
@@ -169,7 +169,7 @@ def test_log_negativity_plan_against_monte_carlo():
 
 # ---- Monte-Carlo checks of the oscillator plans -----------------------------------------
 
-from gqsim.statistics import covariance_monte_carlo_check, duan_monte_carlo_check  # noqa: E402
+from gqsim.studies.certification.statistics import covariance_monte_carlo_check, duan_monte_carlo_check  # noqa: E402
 
 
 def test_duan_monte_carlo_check_at_planned_repetitions():
@@ -201,8 +201,8 @@ from hypothesis import given, settings  # noqa: E402
 from hypothesis import strategies as st  # noqa: E402
 from scipy.linalg import expm  # noqa: E402
 
-from gqsim.statistics import covariance_witness_plan  # noqa: E402
-from gqsim.statistics import _vech  # noqa: E402
+from gqsim.studies.certification.statistics import covariance_witness_plan  # noqa: E402
+from gqsim.studies.certification.statistics import _vech  # noqa: E402
 
 _OMEGA = np.array([[0, 1, 0, 0], [-1, 0, 0, 0], [0, 0, 0, 1], [0, 0, -1, 0]], dtype=float)
 

@@ -12,8 +12,8 @@ import pytest
 from scipy import stats
 
 from gqsim.errors import ProtocolError
-from gqsim.statistics import estimate_from_counts, monte_carlo_check, plan_repetitions, simulate_records
-from gqsim.witness_design import ReadoutModel, optimal_ppt_witness, setting_table, spin_correlation_witness
+from gqsim.studies.certification.statistics import estimate_from_counts, monte_carlo_check, plan_repetitions, simulate_records
+from gqsim.studies.certification.witness_design import ReadoutModel, optimal_ppt_witness, setting_table, spin_correlation_witness
 from tests.statistics.stat_states import branch_phase_state, cz_plus_plus, dephased
 
 N_SE = 4.0  # standard errors allowed between a Monte-Carlo estimate and its prediction

@@ -7,7 +7,7 @@ import pytest
 from scipy import stats
 
 from gqsim.errors import PhysicsError, ProtocolError
-from gqsim.statistics import (
+from gqsim.studies.certification.statistics import (
     best_measurement_time,
     plan_ppt_scan,
     plan_repetitions,
@@ -15,7 +15,7 @@ from gqsim.statistics import (
     repetitions_optimal_split,
     sigma_multiplier,
 )
-from gqsim.witness_design import (
+from gqsim.studies.certification.witness_design import (
     ReadoutModel,
     optimal_ppt_witness,
     parse_witness,
@@ -230,7 +230,7 @@ def test_corrected_readout_is_unbiased_and_never_cheaper(seed, fa0, fa1, fb, eta
 
 # ---- spin witness in its best local frames ------------------------------------------------
 
-from gqsim.witness_design import optimised_spin_witness  # noqa: E402
+from gqsim.studies.certification.witness_design import optimised_spin_witness  # noqa: E402
 
 
 def test_optimised_spin_witness_reproduces_reference_count():

@@ -9,7 +9,7 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from gqsim.errors import ProtocolError
-from gqsim.witness_design import (
+from gqsim.studies.certification.witness_design import (
     ReadoutModel,
     check_separable_bound,
     decompose,
@@ -307,7 +307,7 @@ def test_witness_design_is_covariant_under_local_unitaries(seed, dims, rank):
     # count must not change (up to rounding each setting's count up: at most one per setting).
     from scipy.stats import unitary_group
 
-    from gqsim.statistics import plan_repetitions
+    from gqsim.studies.certification.statistics import plan_repetitions
 
     rng = np.random.default_rng(seed)
     rho = random_density(rng, dims[0] * dims[1], rank)

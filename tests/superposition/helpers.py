@@ -2,7 +2,7 @@
 
 import numpy as np
 
-from gqsim.protocol import parse_protocol
+from gqsim.protocol.reader import parse_protocol
 
 
 def two_body_protocol(*, style="in_line", distance=450e-6, span=250e-6, mass=1e-14, hold=2.5, points=11,

@@ -1,5 +1,5 @@
 """The closed-form measures of dephased phase states against the general linear-algebra route
-(gqsim.measures, itself checked against QuTiP) and against QuTiP directly."""
+(gqsim.physics.measures, itself checked against QuTiP) and against QuTiP directly."""
 
 import numpy as np
 import pytest
@@ -7,9 +7,9 @@ import qutip
 from hypothesis import given
 from hypothesis import strategies as st
 
-from gqsim.measures import concurrence, log_negativity, negativity, purity
-from gqsim.measures_closed_form import phase_state_measures
-from gqsim.witnesses import spin_witness_optimised
+from gqsim.physics.measures import concurrence, log_negativity, negativity, purity
+from gqsim.superposition.closed_form_measures import phase_state_measures
+from gqsim.physics.witnesses import spin_witness_optimised
 
 EXACT = 1e-12  # both routes are exact; the difference is double round-off
 

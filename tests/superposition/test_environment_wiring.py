@@ -1,5 +1,5 @@
 """An [environment] table in a superposition protocol adds the environment's branch decoherence
-to each body (gqsim.environment), on top of the body's own dephasing."""
+to each body (gqsim.physics.environment), on top of the body's own dephasing."""
 
 import numpy as np
 import pytest

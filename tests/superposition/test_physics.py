@@ -9,7 +9,7 @@ from scipy.constants import G, hbar
 from scipy.optimize import brentq
 
 import gqsim
-from gqsim.model import entangling_rate_estimate, mass_for_entangling_rate
+from gqsim.superposition.model import entangling_rate_estimate, mass_for_entangling_rate
 from tests.superposition.helpers import two_body_protocol
 
 PHASE_TOL = 1e-9  # rad; quadrature-free closed form, limited by double round-off

@@ -2,8 +2,8 @@
 
 from pathlib import Path
 
-from gqsim.protocol import load_protocol, parse_protocol
-from gqsim.sweeps import parse_sweep
+from gqsim.protocol.reader import load_protocol, parse_protocol
+from gqsim.studies.surveys import parse_sweep
 
 PROTOCOLS = Path(__file__).resolve().parents[2] / "protocols"
 

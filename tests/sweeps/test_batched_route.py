@@ -4,8 +4,9 @@
 import numpy as np
 import pytest
 
-from gqsim.sweeps import batched, point_protocol, run_sweep
-from gqsim.sweeps.one_by_one import evaluate_point
+from gqsim.studies.surveys import point_protocol, run_sweep
+from gqsim.superposition import batched
+from gqsim.studies.surveys.one_by_one import evaluate_point
 
 from .helpers import inline_with_localisation, small_sweep
 
@@ -51,7 +52,7 @@ def test_batched_equals_one_by_one_and_explicit_matrices(name):
         single = evaluate_point(point_protocol(spec.base, spec.point_values(i)))
         for fig in FIGURES:
             assert kernel[fig][i] == pytest.approx(single[fig], abs=ROUTE_ATOL, rel=ROUTE_ATOL), (fig, i)
-        # the source name the run's own noise budget (gqsim.environment.budget) calls dominant
+        # the source name the run's own noise budget (gqsim.studies.decoherence) calls dominant
         assert kernel["dominant_noise"][i] == single["dominant_noise"], i
     for fig in FIGURES:
         np.testing.assert_allclose(kernel[fig], plain[fig], rtol=ROUTE_ATOL, atol=ROUTE_ATOL, err_msg=fig)
@@ -66,8 +67,8 @@ def test_time_grid_past_the_hold_is_handled():
                         {"path": "timing.hold_s", "values": [4.0, 6.0]}])
     data = spec.base.to_dict()
     data["time_grid"] = {"start_s": 0.0, "stop_s": 9.0, "points": 91}
-    from gqsim.protocol import parse_protocol
-    from gqsim.sweeps.spec import SweepSpec
+    from gqsim.protocol.reader import parse_protocol
+    from gqsim.studies.surveys.spec import SweepSpec
 
     spec = SweepSpec(base=parse_protocol(data), axes=spec.axes)
     batch = batched.gather_batch(spec, np.arange(spec.n_points))
@@ -121,7 +122,7 @@ def test_invalid_points_fail_with_their_message_in_both_routes(tmp_path):
 def test_protocol_tables_outside_the_batched_model_go_one_by_one():
     """Extra pair potentials ([interactions]: Casimir-Polder etc.) change the phases, so a
     sweep of such a protocol must not take the gravity-only batched formulas."""
-    from gqsim.sweeps import resolve_route
+    from gqsim.studies.surveys import resolve_route
 
     spec = small_sweep([{"path": "arrangement.centre_distance_m", "values": [300e-6, 400e-6]}],
                        base_protocol="casimir-budget-diamonds.toml")

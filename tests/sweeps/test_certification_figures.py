@@ -1,16 +1,16 @@
 """Certification figures (opt-in, one-by-one route): finite exactly where shared references §1.8
 says entanglement exists (gamma < omega_ent/2), growing with dephasing, and equal to what
-gqsim.certify plans for the same single protocol."""
+gqsim.studies.certification.plan plans for the same single protocol."""
 
 import math
 
 import numpy as np
 import pytest
 
-from gqsim.certify import CertifyOptions, certify_result
-from gqsim.pipeline import simulate
-from gqsim.protocol import load_protocol, parse_protocol
-from gqsim.sweeps import point_protocol, resolve_route, run_sweep
+from gqsim.studies.certification.plan import CertifyOptions, certify_result
+from gqsim.families import simulate
+from gqsim.protocol.reader import load_protocol, parse_protocol
+from gqsim.studies.surveys import point_protocol, resolve_route, run_sweep
 
 from .helpers import PROTOCOLS, small_sweep
 
@@ -37,7 +37,7 @@ def test_certification_figures_follow_the_dephasing_threshold(tmp_path):
     np.testing.assert_array_equal(finite, ds.gamma.values < gamma_c)
     assert np.all(np.diff(reps[finite]) > 0)  # more dephasing, more repetitions
     assert np.isnan(ds.certification_time_s.values[~finite]).all()
-    # the stored plan is gqsim.certify's plan for the same protocol
+    # the stored plan is gqsim.studies.certification.plan's plan for the same protocol
     i = 1
     proto = point_protocol(spec.base, spec.point_values(i))
     row = certify_result(simulate(proto), CertifyOptions(builtin=("optimal_ppt",), confidence=0.999,

@@ -7,7 +7,7 @@ import signal
 import pytest
 import xarray as xr
 
-from gqsim.sweeps import run_sweep
+from gqsim.studies.surveys import run_sweep
 
 from .helpers import small_sweep
 

@@ -1,4 +1,4 @@
-"""The compiled two-oscillator sweep kernel (gqsim.sweeps.gaussian_kernel) against its numpy
+"""The compiled two-oscillator sweep kernel (gqsim.oscillators.batched_kernel) against its numpy
 reference (gqsim.oscillators.measures on the numpy-propagated stack, i.e. Cholesky + LAPACK
 eigensolvers), against closed forms and against 60-digit mpmath."""
 
@@ -11,9 +11,9 @@ from hypothesis import given, settings, strategies as st
 
 from gqsim.errors import ProtocolError
 from gqsim.oscillators import measures
-from gqsim.oscillators.engines_gaussian import van_loan
+from gqsim.oscillators.solve_moments import van_loan
 from gqsim.oscillators.model import symplectic_form
-from gqsim.sweeps import gaussian_kernel as gk
+from gqsim.oscillators import batched_kernel as gk
 
 EPS = float(np.finfo(float).eps)
 #: accuracy promised by the batched route: kernel and numpy reference agree to 1e-12 absolute

@@ -3,8 +3,8 @@ value of a third axis; plot functions return what they drew on."""
 
 import matplotlib.pyplot as plt
 
-from gqsim.sweeps import run_sweep
-from gqsim.sweeps.maps import plot_feasibility, plot_feasibility_slices
+from gqsim.studies.surveys import run_sweep
+from gqsim.report.charts import plot_feasibility, plot_feasibility_slices
 
 from .helpers import small_sweep
 

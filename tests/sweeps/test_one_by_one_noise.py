@@ -1,10 +1,10 @@
 """The ``dominant_noise`` figure is the dominant source of each point's noise budget
-(gqsim.environment.budget), environment sources included."""
+(gqsim.studies.decoherence), environment sources included."""
 
 import numpy as np
 
-from gqsim.environment.budget import dominant_source
-from gqsim.sweeps import run_sweep
+from gqsim.studies.decoherence import dominant_source
+from gqsim.studies.surveys import run_sweep
 
 from .helpers import small_sweep
 

@@ -7,8 +7,8 @@ import numpy as np
 import pytest
 from scipy.constants import G
 
-from gqsim.protocol import parse_protocol
-from gqsim.sweeps import resolve_route, run_sweep
+from gqsim.protocol.reader import parse_protocol
+from gqsim.studies.surveys import resolve_route, run_sweep
 
 from .helpers import small_sweep
 
@@ -91,7 +91,7 @@ def test_stacked_exponential_matches_scipy():
     """The stacked Taylor scaling-and-squaring exponential against scipy.linalg.expm (Pade)."""
     from scipy.linalg import expm
 
-    from gqsim.sweeps.batched_gaussian import stacked_expm
+    from gqsim.oscillators.batched import stacked_expm
 
     rng = np.random.default_rng(7)
     for scale in (1e-3, 0.1, 1.0):
@@ -144,10 +144,10 @@ def test_batched_route_applies_the_environment_table(tmp_path):
 def test_array_route_keys_equal_simulate(tmp_path):
     """Mass, position, localisation and damping axes (quantum-optical with a bath temperature on
     one body, Caldeira-Leggett on the other) go through the array forms of the model and channel
-    stages with no model build per point (gqsim.sweeps.batched_gaussian.array_dynamics); every
+    stages with no model build per point (gqsim.oscillators.batched.array_dynamics); every
     point equals gqsim.simulate of its own protocol to 1e-12, and a position that makes the
     spheres overlap fails with simulate's own one-line message."""
-    from gqsim.sweeps.batched_gaussian import array_scope, axis_kind
+    from gqsim.oscillators.batched import array_scope, axis_kind
 
     data = _pair().to_dict()
     for body in data["bodies"]:
@@ -199,7 +199,7 @@ def test_array_dynamics_equal_the_scalar_model_stage():
     gqsim.simulate runs): drift, diffusion, step and grid agree to 1e-12 relative for every
     array key at once, including quantum-optical damping in a warm bath and Caldeira-Leggett
     damping, and an axis along y for the second body."""
-    from gqsim.sweeps.batched_gaussian import _applied, _dynamics_of, array_dynamics
+    from gqsim.oscillators.batched import _applied, _dynamics_of, array_dynamics
 
     data = _pair().to_dict()
     data["bodies"][0]["channels"] = {"bath_temperature_k": 1e-9, "localisation_per_m2_s": 3e25,
@@ -239,7 +239,7 @@ def test_interactions_go_through_the_array_forms(tmp_path):
     Coulomb term really changes the figures (checked against the neutral pair); our own demo
     numbers."""
     from gqsim.oscillators.run import build
-    from gqsim.sweeps.batched_gaussian import array_scope
+    from gqsim.oscillators.batched import array_scope
 
     data = _pair().to_dict()
     for body in data["bodies"]:
@@ -277,7 +277,7 @@ def test_quenched_and_inverted_stages_through_the_array_forms(tmp_path):
     whose growth boosts the coupling; cf. Weiss et al. 2021, from memory) keeps those traps while
     the bodies' preparation traps and masses are swept; every point equals gqsim.simulate (1e-12)."""
     from gqsim.oscillators.run import build
-    from gqsim.sweeps.batched_gaussian import array_scope
+    from gqsim.oscillators.batched import array_scope
 
     axes = [{"path": "bodies[*].mass_kg", "label": "m", "values": [1e-6, 2e-6]},
             {"path": "bodies[*].trap_hz", "label": "f", "values": [1.0, 1.4]}]
@@ -295,8 +295,8 @@ def test_models_outside_the_array_scope_build_per_point(tmp_path):
     """With an [environment] table the gas rates depend on the masses, so a mass axis is outside
     the array forms and builds a model per point; it still equals gqsim.simulate (1e-12)."""
     from gqsim.oscillators.run import build
-    from gqsim.protocol import load_protocol
-    from gqsim.sweeps.batched_gaussian import array_scope
+    from gqsim.protocol.reader import load_protocol
+    from gqsim.oscillators.batched import array_scope
 
     from .helpers import PROTOCOLS
 
@@ -317,7 +317,7 @@ def test_environment_keys_with_channel_axes_equal_simulate(tmp_path):
     (batched_gaussian.environment_channels), the model from the array forms; every point equals
     gqsim.simulate (1e-12), and extra damping next to the gas fails with the environment
     stage's own one-line message on both routes."""
-    from gqsim.sweeps.batched_gaussian import axis_kind
+    from gqsim.oscillators.batched import axis_kind
 
     axes = [{"path": "environment.gas.pressure_pa", "label": "p", "values": [1e-22, 1e-18]},
             {"path": "environment.temperature_k", "label": "T", "values": [2.0, 10.0]},

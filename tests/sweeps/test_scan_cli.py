@@ -15,7 +15,7 @@ BUNDLED = PROTOCOLS / "sweep-hollowmere-mass-dephasing.toml"
 
 
 def test_scan_is_registered():
-    assert "gqsim.sweep_cli:scan_group" in COMMAND_MODULES
+    assert "gqsim.cli.survey:scan_group" in COMMAND_MODULES
     assert {"run", "status", "export", "threshold", "map"} <= set(cli.commands["scan"].commands)
 
 

@@ -5,8 +5,8 @@ import shutil
 import pytest
 
 from gqsim.errors import ProtocolError
-from gqsim.sweeps import run_sweep
-from gqsim.sweeps.spec import get_path, load_sweep, set_path
+from gqsim.studies.surveys import run_sweep
+from gqsim.studies.surveys.spec import get_path, load_sweep, set_path
 
 from .helpers import PROTOCOLS, small_sweep
 

@@ -12,8 +12,8 @@ import pytest
 import xarray as xr
 import zarr
 
-from gqsim.sweeps import export_netcdf, open_sweep, run_sweep
-from gqsim.sweeps.storage import DONE, PENDING, SweepStore, chunk_shape
+from gqsim.studies.surveys import export_netcdf, open_sweep, run_sweep
+from gqsim.studies.surveys.storage import DONE, PENDING, SweepStore, chunk_shape
 
 from .helpers import PROTOCOLS, small_sweep
 

@@ -6,8 +6,8 @@ import numpy as np
 import pytest
 
 from gqsim.errors import ProtocolError
-from gqsim.sweeps import run_sweep
-from gqsim.sweeps.threshold import solve_threshold
+from gqsim.studies.surveys import run_sweep
+from gqsim.studies.surveys.boundary import solve_threshold
 
 from .helpers import small_sweep
 
@@ -18,7 +18,7 @@ T1 = 12.0 / 1200
 def _grid_root(omega):
     """Exact threshold on the grid: min over t > 0 of the smallest partial-transpose eigenvalue,
     (1 - p^2 - 2 p |sin(omega t/2)|)/4 with p = exp(-gamma t), first turns negative at t = T1
-    when sinh(gamma T1) = |sin(omega T1/2)| (derived from the eigenvalues in gqsim.sweeps.batched)."""
+    when sinh(gamma T1) = |sin(omega T1/2)| (derived from the eigenvalues in gqsim.superposition.batched)."""
     return math.asinh(abs(math.sin(omega * T1 / 2))) / T1
 
 
@@ -103,8 +103,8 @@ def test_thermal_threshold_of_the_oscillator_quench(tmp_path):
     from scipy.constants import G
 
     from gqsim.oscillators.analytic import thermal_threshold_occupation
-    from gqsim.protocol import parse_protocol
-    from gqsim.sweeps import resolve_route
+    from gqsim.protocol.reader import parse_protocol
+    from gqsim.studies.surveys import resolve_route
 
     mass, d, f = 1.0, 1e-3, 1.3
     body = {"mass_kg": mass, "trap_hz": f, "modes": ["x"]}

@@ -1,0 +1,8 @@
+"""Protocol layer: read a protocol file, validate it against the shipped JSON schema, and say
+what every key means. Nothing here builds physics."""
+
+from gqsim.protocol.reader import (FAMILIES, SCHEMA_VERSION, Protocol, load_protocol, parse_protocol,
+                                   read_schema_file, read_toml, schema_for)
+
+__all__ = ["FAMILIES", "SCHEMA_VERSION", "Protocol", "load_protocol", "parse_protocol", "read_schema_file",
+           "read_toml", "schema_for"]

@@ -1,0 +1,1 @@
+"""Certification: witness operators and their local settings, repetition counts and lab time."""

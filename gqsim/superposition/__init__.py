@@ -1,0 +1,19 @@
+"""Two (or more) masses each split into a spatial superposition of branches, picking up
+conditional phases from their pair potentials.
+
+Stages, one module each (data flows down the list):
+
+``setup``                frozen parameter objects read from a validated protocol
+``model``                joint-branch energies and phases (closed form while holding, quadrature
+                         along split/recombine paths), entangling phase and its analytic rate
+``channels``             branch-decoherence channels of each body and their decay exponents
+``solvers``              ``branch_phases`` (exact element-wise solution) and ``density_matrix``
+                         (Lindblad master equation through QuTiP)
+``closed_form_measures`` closed forms for the equal-weight dephased qubit pair
+``batched``              the array form of the hold-only qubit pair, for surveys
+``run``                  protocol -> setup -> model -> channels -> solver -> run record
+"""
+
+from gqsim.superposition.run import build, simulate
+
+__all__ = ["build", "simulate"]
