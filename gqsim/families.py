@@ -1,14 +1,14 @@
-"""Wires the stages together: protocol -> setup -> model -> channels -> engine -> result -> measures.
+"""The model families behind one call shape, so that studies, the command line and notebooks
+stay family agnostic.
 
-Each protocol family registers a ``build`` (protocol -> model, validating physics)
-and a ``simulate`` (protocol -> Result) function here, by import path, so that the
-command line and the notebook API stay family agnostic.
+Each family package exposes ``build`` (protocol -> model, validating physics), ``simulate``
+(protocol -> run record, carrying its decoherence tally) and ``decoherence_tally`` (the tally
+without evolving); they are registered here by import path.
 """
 
 from __future__ import annotations
 
 import importlib
-from dataclasses import replace
 from pathlib import Path
 from typing import Any, Callable
 
@@ -16,18 +16,19 @@ from gqsim.errors import ProtocolError
 from gqsim.protocol.reader import Protocol, load_protocol
 from gqsim.record import Result
 
-__all__ = ["simulate", "build", "FAMILY_RUNNERS"]
+__all__ = ["simulate", "build", "decoherence_tally", "FAMILY_RUNNERS"]
 
-#: family -> (builder "module:function", simulator "module:function")
-FAMILY_RUNNERS: dict[str, tuple[str, str]] = {
-    "superposition": ("gqsim.superposition.run:build", "gqsim.superposition.run:simulate"),
-    "oscillators": ("gqsim.oscillators.run:build", "gqsim.oscillators.run:simulate"),
+#: family -> package exposing build, simulate and decoherence_tally
+FAMILY_RUNNERS: dict[str, str] = {
+    "superposition": "gqsim.superposition",
+    "oscillators": "gqsim.oscillators",
 }
 
 
-def _resolve(spec: str) -> Callable[..., Any]:
-    module_name, attr = spec.split(":")
-    return getattr(importlib.import_module(module_name), attr)
+def _entry(proto: Protocol, name: str) -> Callable[..., Any]:
+    if proto.family not in FAMILY_RUNNERS:
+        raise ProtocolError("family", proto.family, f"must be one of {sorted(FAMILY_RUNNERS)}")
+    return getattr(importlib.import_module(FAMILY_RUNNERS[proto.family]), name)
 
 
 def _as_protocol(protocol: Protocol | str | Path) -> Protocol:
@@ -37,29 +38,19 @@ def _as_protocol(protocol: Protocol | str | Path) -> Protocol:
 def build(protocol: Protocol | str | Path):
     """Validate ``protocol`` down to the model stage and return the model (no time evolution)."""
     proto = _as_protocol(protocol)
-    if proto.family not in FAMILY_RUNNERS:
-        raise ProtocolError("family", proto.family, f"must be one of {sorted(FAMILY_RUNNERS)}")
-    return _resolve(FAMILY_RUNNERS[proto.family][0])(proto)
+    return _entry(proto, "build")(proto)
 
 
 def simulate(protocol: Protocol | str | Path, *, engine: str | None = None) -> Result:
-    """Run ``protocol`` (a :class:`Protocol` or a path to a TOML file) and return its :class:`Result`.
+    """Run ``protocol`` (a :class:`Protocol` or a path to a TOML file) and return its record.
 
-    ``engine`` overrides the protocol's own engine choice (``None`` keeps it).
+    ``engine`` overrides the protocol's own solver choice (``None`` keeps it).
     """
     proto = _as_protocol(protocol)
-    if proto.family not in FAMILY_RUNNERS:
-        raise ProtocolError("family", proto.family, f"must be one of {sorted(FAMILY_RUNNERS)}")
-    result = _resolve(FAMILY_RUNNERS[proto.family][1])(proto, engine=engine)
-    return replace(result, summary={**result.summary, "noise_budget": _noise_budget_summary(proto)})
+    return _entry(proto, "simulate")(proto, engine=engine)
 
 
-def _noise_budget_summary(proto: Protocol) -> dict:
-    """Every decoherence channel of the run with its rate and share (gqsim.studies.decoherence);
-    ``gqsim noise budget`` prints the full table with references and tolerable limits."""
-    from gqsim.studies.decoherence import noise_budget
-
-    budget = noise_budget(proto.to_dict(), source=proto.source).to_json_dict()
-    rows = [{"body": c["body"], "channel": c["channel"], "rate": c["rate_per_s"], "share": c["share"],
-             "driver": c["driver"] or "-"} for c in budget["channels"]]
-    return {"quantity": budget["quantity"], "rows": rows}
+def decoherence_tally(protocol: Protocol | str | Path):
+    """Every decoherence channel of ``protocol`` with its rate and share, without evolving it."""
+    proto = _as_protocol(protocol)
+    return _entry(proto, "decoherence_tally")(proto)

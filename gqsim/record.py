@@ -195,3 +195,53 @@ def _plain(value: Any) -> Any:
 def dumps(result: Result) -> str:
     """JSON text of :meth:`Result.to_json_dict`."""
     return json.dumps(result.to_json_dict())
+
+
+#: E_N values within max(MAX_TIE_RELATIVE * max, MAX_TIE_FLOOR) of the maximum count as the
+#: maximum and the earliest such time is reported: round-off (~1e-16 per entry, ~1e-15 between
+#: routes) must not pick the time of max of a flat or zero curve, while real peaks (oscillator
+#: E_N ~ 1e-9 varies by ~1e-13 between neighbouring grid times) keep their own time.
+MAX_TIE_RELATIVE = 1e-12
+
+
+MAX_TIE_FLOOR = 1e-14
+
+
+def first_near_max(values: np.ndarray) -> np.ndarray:
+    """Index of the first entry within the tie tolerance (see MAX_TIE_RELATIVE) of the maximum, last axis."""
+    values = np.asarray(values)
+    top = values.max(axis=-1, keepdims=True)
+    return np.argmax(values >= top - np.maximum(MAX_TIE_RELATIVE * np.abs(top), MAX_TIE_FLOOR), axis=-1)
+
+
+#: characters kept of a ``dominant_noise`` source name (fixed-width text in the store)
+NOISE_LABEL_WIDTH = 64
+
+
+#: figure name -> (unit, description)
+FIGURES: dict[str, tuple[str, str]] = {
+    "max_log_negativity": ("protocol log base", "largest log-negativity E_N over the time grid"),
+    "time_of_max_s": ("s", "grid time of the largest E_N"),
+    "entangled": ("1", "1 when E_N exceeds the numerical floor somewhere on the grid, else 0"),
+    "min_pt_eigenvalue": ("1", "smallest eigenvalue of the partial transpose over grid times t > 0; "
+                               "negative exactly when the grid shows entanglement (signed, for root finding)"),
+    "entangling_rate_rad_s": ("rad/s", "analytic entangling-phase rate while the branches are held"),
+    "dephasing_threshold_per_s": ("1/s", "|rate|/2: a per-body constant dephasing rate above this "
+                                         "prevents entanglement (shared physics references §1.8)"),
+    "dominant_noise": ("", "source with the largest rate in the point's noise budget (gqsim.studies.decoherence: "
+                           "coherence decay at full split for superpositions, heating for oscillators); "
+                           "'none' where nothing decoheres, '' where the point is not evaluated"),
+    "certification_time_s": ("s", "grid time at which certifying entanglement takes the least lab time "
+                                  "(optimal PPT witness for branches, Duan for oscillators; gqsim.studies.certification.plan); "
+                                  "NaN where the grid never certifies"),
+    "certification_repetitions": ("1", "total repetitions at that time; inf where never certifiable"),
+    "certification_lab_time_s": ("s", "repetitions x (time + overhead) at that time; inf where never certifiable"),
+}
+
+
+#: figures that need a measurement plan (one-by-one route only)
+CERTIFICATION_FIGURES = ("certification_time_s", "certification_repetitions", "certification_lab_time_s")
+
+
+DEFAULT_FIGURES = ("max_log_negativity", "time_of_max_s", "entangled", "min_pt_eigenvalue",
+                   "entangling_rate_rad_s", "dephasing_threshold_per_s", "dominant_noise")

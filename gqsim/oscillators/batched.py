@@ -36,7 +36,8 @@ import numpy as np
 from scipy.linalg import expm
 
 from gqsim.errors import GqsimError
-from gqsim.studies.surveys.spec import CERTIFICATION_FIGURES, NOISE_LABEL_WIDTH, set_path, split_path
+from gqsim.protocol.keypaths import set_path, split_path
+from gqsim.record import CERTIFICATION_FIGURES, NOISE_LABEL_WIDTH
 
 __all__ = ["gaussian_support", "evaluate_gaussian_points", "stacked_expm", "covariance_only", "axis_kind",
            "array_scope", "array_dynamics"]
@@ -117,7 +118,7 @@ def _dynamics_of(data: dict) -> _Dynamics:
     """The model of protocol mapping ``data`` (sweep values applied, see :func:`_applied`)."""
     from gqsim.oscillators.channels import build_channels
     from gqsim.oscillators.model import build_model, symplectic_form
-    from gqsim.oscillators.run import with_environment
+    from gqsim.oscillators.environment import with_environment
     from gqsim.oscillators.setup import setup_from_protocol
 
     model = build_model(setup_from_protocol(with_environment(data)))
@@ -214,8 +215,9 @@ def environment_channels(data: dict, env_values: list, channel_values: list) -> 
     ``env_values``: per point, {path: value} of environment keys; ``channel_values``: per point,
     {path: value} of channel-rate keys (applied to the bodies' own tables first).
     """
-    from gqsim.studies.decoherence import (_AXIS_VECTORS, _oscillator_bodies, dominant_source,
+    from gqsim.oscillators.environment import (AXIS_VECTORS as _AXIS_VECTORS, oscillator_bodies as _oscillator_bodies,
                                           oscillator_channel_table, oscillator_mode_rows)
+    from gqsim.physics.environment.tally import dominant_source
     from gqsim.physics.environment.sources import oscillator_terms
     from gqsim.physics.environment.parameters import environment_from_table
     from gqsim.oscillators.setup import BodyChannels
@@ -417,7 +419,7 @@ def evaluate_gaussian_points(spec, points: np.ndarray) -> tuple[dict, np.ndarray
     """
     from gqsim.oscillators.model import squeezed_thermal_covariance
     from gqsim.oscillators.run import EN_FLOOR
-    from gqsim.superposition.batched import first_near_max
+    from gqsim.record import first_near_max
     from gqsim.oscillators.batched_kernel import propagate_and_measure
 
     base = spec.base.to_dict()
@@ -560,7 +562,8 @@ def _dominant_noise(data: dict, model) -> str:
     gqsim.studies.decoherence.oscillator_noise_budget (oscillator_mode_rows per mode), without its
     notes and protocol re-validation; without an ``[environment]`` table the model's setup
     already holds the bodies' own channels."""
-    from gqsim.studies.decoherence import _oscillator_bodies, dominant_source, oscillator_mode_rows
+    from gqsim.oscillators.environment import oscillator_bodies as _oscillator_bodies, oscillator_mode_rows
+    from gqsim.physics.environment.tally import dominant_source
 
     if data.get("environment") is None:
         bodies, env, spheres = model.setup.bodies, None, [None] * len(model.setup.bodies)

@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import itertools
 import math
+from dataclasses import replace
 from typing import Any, Mapping
 
 import numpy as np
@@ -17,6 +18,7 @@ import numpy as np
 from gqsim.errors import PhysicsError, ProtocolError
 from gqsim.oscillators import analytic, measures
 from gqsim.oscillators.channels import OpenDynamics, build_channels
+from gqsim.oscillators.environment import fold_environment, oscillator_bodies, tally_of, with_environment
 from gqsim.oscillators.solve_moments import (CONDITION_LIMIT, condition_numbers, evolve_gaussian,
                                                  evolve_gaussian_precise)
 from gqsim.oscillators.model import OscillatorModel, build_model
@@ -24,7 +26,7 @@ from gqsim.oscillators.setup import setup_from_protocol
 from gqsim.protocol.reader import Protocol, load_protocol
 from gqsim.record import Provenance, Result, entangled_windows, package_versions
 
-__all__ = ["build", "simulate", "simulate_model", "UNITS"]
+__all__ = ["build", "simulate", "simulate_model", "pair_covariances", "UNITS"]
 
 #: units of every series this family reports (prefix match for per-mode series).
 UNITS = {
@@ -65,31 +67,20 @@ def build(protocol) -> OscillatorModel:
     return model
 
 
-def with_environment(data: Mapping[str, Any]) -> Mapping[str, Any]:
-    """The protocol mapping with an ``[environment]`` table folded into each body's channels
-    (gas as Caldeira-Leggett damping at the gas temperature; photon, laser and extra
-    localisation added to ``localisation_per_m2_s``; see gqsim.studies.decoherence). ``data`` is
-    not modified; without an environment it is returned as is. Every route from a protocol to
-    an oscillator model (``build`` here, the batched sweep route) goes through this."""
-    if data.get("environment") is None:
-        return data
-    from gqsim.studies.decoherence import _oscillator_bodies, oscillator_channel_table
-
-    out = dict(data)
-    table = out.pop("environment")
-    out["bodies"] = [dict(entry) for entry in data["bodies"]]
-    setup, env, spheres = _oscillator_bodies(data, table)
-    for index, (body, sphere) in enumerate(zip(setup.bodies, spheres)):
-        entry = out["bodies"][index]
-        entry["channels"] = oscillator_channel_table(env, sphere, body, entry.get("channels", {}), f"bodies[{index}]")
-    return out
-
-
 def simulate(protocol, *, engine: str | None = None) -> Result:
     """Simulate an oscillators protocol; ``engine`` is "gaussian", "fock", "auto" or None (protocol's)."""
     proto = _protocol(protocol)
-    model = build(proto)
-    return simulate_model(model, engine=engine, protocol=proto)
+    if proto.family != "oscillators":
+        raise ProtocolError("family", proto.family, "gqsim.oscillators builds only family = \"oscillators\"")
+    plain = proto.to_dict()
+    table = plain.pop("environment", None)
+    setup, env, spheres = oscillator_bodies(plain, table)
+    tally = tally_of(setup, env, spheres, plain.get("about", {}).get("title", ""))
+    folded = plain if table is None else fold_environment(plain, setup, env, spheres)
+    model = build_model(setup if table is None else setup_from_protocol(folded))
+    build_channels(model)  # validates the channel numbers too
+    result = simulate_model(model, engine=engine, protocol=proto)
+    return replace(result, summary={**result.summary, "noise_budget": tally.summary_rows()})
 
 
 def _choose_engine(model: OscillatorModel, engine: str | None) -> str:
@@ -413,3 +404,23 @@ def _flatten(companions: dict) -> dict:
         else:
             flat[key] = value
     return flat
+
+
+def pair_covariances(protocol, result=None) -> tuple[np.ndarray, np.ndarray]:
+    """Covariances (n_times, 4, 4) of the two bodies' modes and their length scales ell [m].
+
+    Read from the run's own ``covariance`` series (lab frame, scaled quadratures) when
+    ``result`` carries one; otherwise the exact covariance propagation is run. One mode is kept
+    per side (the certification study's Duan plan reads them).
+    """
+    model = build(protocol)
+    side_a, side_b = _sides(model)
+    if len(side_a) != 1 or len(side_b) != 1:
+        raise PhysicsError("bodies", f"{len(side_a)} + {len(side_b)} modes",
+                           "the Duan plan needs exactly one mode on each side")
+    if result is not None and "covariance" in result.series:
+        covariances = np.asarray(result.series["covariance"])
+    else:
+        covariances = evolve_gaussian(model, build_channels(model)).covariances
+    modes = side_a + side_b
+    return measures.reduce(covariances, modes), np.asarray(model.scales.length_m)[modes]

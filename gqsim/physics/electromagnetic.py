@@ -1355,3 +1355,39 @@ def potential_factory(name: str):
 
     make.__name__ = f"{name}_between"
     return make
+
+
+def split_interaction_keys(data: Mapping[str, Any]) -> tuple[dict, dict]:
+    """Split a protocol mapping into (family part, confounder part).
+
+    The confounder part holds ``interactions`` and, per body, the fragment's body keys;
+    the family part is everything else, for :func:`gqsim.protocol.reader.parse_protocol`. Once the
+    family schemas include the fragment this split is harmless (the keys validate twice).
+    """
+    frag = fragment()
+    body_keys = set(frag["body_properties"])
+    family = json.loads(json.dumps(dict(data)))
+    extra: dict = {}
+    if "interactions" in family:
+        extra["interactions"] = family.pop("interactions")
+    bodies = family.get("bodies")
+    if isinstance(bodies, list):
+        extra["bodies"] = [{k: b.pop(k) for k in sorted(body_keys & set(b))} if isinstance(b, dict) else {}
+                           for b in bodies]
+    return family, extra
+
+
+def validate_interaction_keys(extra: Mapping[str, Any]) -> None:
+    """Validate the confounder part against the fragment; one-line ProtocolError on failure."""
+    import jsonschema
+
+    from gqsim.protocol.reader import _to_protocol_error  # same error wording as every protocol key
+
+    frag = fragment()
+    schema = {"type": "object", "properties": {
+        **frag["top_level_properties"],
+        "bodies": {"type": "array", "items": {"type": "object", "properties": frag["body_properties"]}}}}
+    errors = list(jsonschema.Draft202012Validator(schema).iter_errors(dict(extra)))
+    if errors:
+        worst = max(errors, key=lambda e: len(e.absolute_path))
+        raise _to_protocol_error(worst)

@@ -29,7 +29,7 @@ import jsonschema
 
 from gqsim.errors import ProtocolError
 
-__all__ = ["Protocol", "SCHEMA_VERSION", "FAMILIES", "FAMILY_FRAGMENTS", "load_protocol", "parse_protocol",
+__all__ = ["Protocol", "SCHEMA_VERSION", "FAMILIES", "FAMILY_FRAGMENTS", "load_protocol", "parse_protocol", "split_environment",
            "read_toml", "schema_for"]
 
 SCHEMA_VERSION = 1
@@ -206,3 +206,22 @@ def _freeze(node: Any) -> Any:
     if isinstance(node, list):
         return tuple(_freeze(v) for v in node)
     return node
+
+
+def split_environment(data: Mapping[str, Any], *, source: str = "<memory>") -> tuple[Protocol, dict | None]:
+    """Validate a protocol mapping that may carry an ``[environment]`` table.
+
+    The environment table is validated against ``environment-v1.fragment.json``; the rest
+    by the family schema. Works whether or not the family schema already includes the
+    fragment. Returns the validated Protocol (without the table) and the table (or None).
+    """
+    plain = copy.deepcopy(dict(data))
+    table = plain.pop("environment", None)
+    if table is not None:
+        validator = jsonschema.Draft202012Validator(read_schema_file("environment-v1.fragment.json"))
+        errors = sorted(validator.iter_errors(table), key=lambda e: -len(e.absolute_path))
+        if errors:
+            err = _to_protocol_error(errors[0])
+            key = "environment" if err.key == "protocol" else f"environment.{err.key}"
+            raise ProtocolError(key, err.value, err.allowed)
+    return parse_protocol(plain, source=source), table

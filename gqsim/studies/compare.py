@@ -33,8 +33,7 @@ from scipy.constants import hbar
 
 from gqsim.errors import PhysicsError
 from gqsim.oscillators import analytic
-from gqsim.oscillators.run import build, simulate_model
-from gqsim.oscillators.setup import AXES
+from gqsim.oscillators import AXES, build, simulate_model
 from gqsim.protocol.reader import Protocol, load_protocol, parse_protocol
 from gqsim.record import Result
 

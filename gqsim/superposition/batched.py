@@ -38,6 +38,7 @@ from scipy.constants import G, hbar
 
 from gqsim.physics.measures import LOG_BASES, log_negativity, partial_transpose
 from gqsim.protocol.reader import Protocol
+from gqsim.record import CERTIFICATION_FIGURES, MAX_TIE_FLOOR, MAX_TIE_RELATIVE, first_near_max
 from gqsim.superposition.setup import DEFAULT_POINTS
 from gqsim.superposition.run import ENTANGLEMENT_SIGNAL_FLOOR
 
@@ -62,12 +63,6 @@ _BATCHED_BODY_KEYS = frozenset({"label", "mass_kg", "radius_m", "dephasing", "sp
 NOISE_SOURCES = ("none", "protocol dephasing table", "spin pure dephasing (T2)",
                  "protocol dephasing table", "spin pure dephasing (T2)")
 
-#: E_N values within max(MAX_TIE_RELATIVE * max, MAX_TIE_FLOOR) of the maximum count as the
-#: maximum and the earliest such time is reported: round-off (~1e-16 per entry, ~1e-15 between
-#: routes) must not pick the time of max of a flat or zero curve, while real peaks (oscillator
-#: E_N ~ 1e-9 varies by ~1e-13 between neighbouring grid times) keep their own time.
-MAX_TIE_RELATIVE = 1e-12
-MAX_TIE_FLOOR = 1e-14
 
 #: Relative margin within which an overlap test is left to the one-by-one route, so that
 #: borderline points get exactly the per-point decision and message (common practice).
@@ -77,10 +72,6 @@ _OVERLAP_MARGIN = 1e-9
 def batched_support(spec) -> tuple[bool, str]:
     """Whether the batched route can run ``spec`` exactly; returns (ok, reason if not)."""
     base: Protocol = spec.base
-    if base.family == "oscillators":
-        from gqsim.oscillators.batched import gaussian_support
-
-        return gaussian_support(spec)
     if base.family != "superposition":
         return False, f"family {base.family!r} has no batched route yet"
     data = base.data
@@ -110,8 +101,6 @@ def batched_support(spec) -> tuple[bool, str]:
                 return False, "unequal branch weights"
         if "mass_kg" not in body:
             return False, "a body's mass follows from radius and density"
-    from gqsim.studies.surveys.spec import CERTIFICATION_FIGURES
-
     if set(CERTIFICATION_FIGURES) & set(spec.figures):
         return False, "certification figures need a measurement plan per point"
     for axis in spec.axes:
@@ -345,11 +334,6 @@ def _scalar_figures(batch: QubitBatch, rate, max_en, t_max, min_pt) -> dict[str,
     }
 
 
-def first_near_max(values: np.ndarray) -> np.ndarray:
-    """Index of the first entry within the tie tolerance (see MAX_TIE_RELATIVE) of the maximum, last axis."""
-    values = np.asarray(values)
-    top = values.max(axis=-1, keepdims=True)
-    return np.argmax(values >= top - np.maximum(MAX_TIE_RELATIVE * np.abs(top), MAX_TIE_FLOOR), axis=-1)
 
 
 def reference_states(batch: QubitBatch) -> np.ndarray:

@@ -6,8 +6,9 @@ from __future__ import annotations
 import numpy as np
 
 from gqsim.superposition.channels import body_channel
+from gqsim.superposition.environment import body_environments, channel_summary, tally_of
 from gqsim.physics.electromagnetic import potentials_from_tables
-from gqsim.studies.forces import superposition_budget
+from gqsim.superposition.forces import superposition_budget
 from gqsim.superposition.solvers import branch_phases, density_matrix
 from gqsim.errors import PhysicsError, ProtocolError
 from gqsim.physics.measures import LOG_BASES, concurrence, log_negativity, negativity, purity
@@ -48,33 +49,6 @@ def build(protocol: Protocol) -> SuperpositionModel:
         model = SuperpositionModel(setup=setup, potentials=tuple(potentials))
     _choose_engine(model, setup.engine)
     return model
-
-
-def _environment_channels(protocol: Protocol, setup) -> tuple[tuple, dict, list[str]]:
-    """Branch-decoherence channels from the ``[environment]`` table (gas, thermal photons, laser
-    recoil, extras; :mod:`gqsim.physics.environment`), added to each body's own dephasing.
-
-    Returns (per-body extra channels, summary rows, validity notes)."""
-    table = protocol.data.get("environment")
-    if table is None:
-        return ((), ()), {}, []
-    from gqsim.physics.environment.parameters import environment_from_table, sphere_from_body_table
-    from gqsim.physics.environment.sources import EnvironmentDephasing, environment_sources, validity_notes
-
-    plain = protocol.to_dict()
-    env = environment_from_table(plain["environment"])
-    extras, rows, notes = [], {}, []
-    for entry, body in zip(plain["bodies"], setup.bodies):
-        sphere = sphere_from_body_table({**entry, "label": body.label}, mass_kg=body.mass_kg,
-                                        radius_m=body.radius_m, key=body.key)
-        channel = EnvironmentDephasing(sources=environment_sources(env, sphere, body.split_axis))
-        extras.append((channel,))
-        span = body.full_span_m
-        rows[body.label] = {"at_full_span_m": span,
-                            **{f"{label}_per_s": rate for label, rate in channel.rates_by_source(span).items()},
-                            "total_per_s": float(channel.rate_per_s(np.array(span)))}
-        notes.extend(validity_notes(env, sphere))
-    return tuple(extras), rows, notes
 
 
 #: theta is a second difference of branch phases: its round-off is a few ulps of the largest one.
@@ -157,7 +131,9 @@ def simulate(protocol: Protocol, *, engine: str | None = None) -> Result:
     model = build(protocol)
     setup = model.setup
     chosen = _choose_engine(model, engine if engine is not None else setup.engine)
-    extras, env_summary, env_notes = _environment_channels(protocol, setup)
+    plain = protocol.to_dict()
+    envs = body_environments(setup, plain.get("environment"), plain["bodies"])
+    extras = ((), ()) if envs is None else tuple((be.channel,) for be in envs)
     channels = tuple(body_channel(b, extra=x) for b, x in zip(setup.bodies, extras))
     times = setup.times_s
     if chosen == "closed_form":
@@ -178,13 +154,14 @@ def simulate(protocol: Protocol, *, engine: str | None = None) -> Result:
     units = {k: (LOG_BASES[setup.log_base][1] if k == "log_negativity" else _UNITS[k]) for k in series}
     summary, notes = _summarise(model, series, times, states, chosen)
     notes.extend(_unused_body_keys(protocol))
-    if env_summary:
-        summary["environment_decoherence"] = env_summary
+    if envs is not None:
+        summary["environment_decoherence"], env_notes = channel_summary(setup, envs)
         notes.extend(env_notes)
     if protocol.data.get("interactions") is not None:
         budget = superposition_budget(protocol.to_dict(), source=protocol.source)
         summary["force_budget"] = budget.to_json_dict()
         notes.extend(budget.notes)
+    summary["noise_budget"] = tally_of(setup, envs).summary_rows()
     provenance = Provenance(protocol=protocol.to_dict(), source=protocol.source, engine=chosen,
                             options={"rtol": setup.rtol, "atol": setup.atol, **stats},
                             versions=package_versions())

@@ -12,8 +12,9 @@ from click.testing import CliRunner
 
 from gqsim.cli import cli
 from gqsim.physics.environment import rates
-from gqsim.studies.decoherence import (Certificate, plot_budget, simulate_with_environment, split_environment,
-                                      superposition_noise_budget, tolerable_limit)
+from gqsim.protocol.reader import split_environment
+from gqsim.studies.decoherence import Certificate, plot_budget, simulate_with_environment, tolerable_limit
+from gqsim.superposition import decoherence_tally as superposition_noise_budget
 from gqsim.physics.environment.parameters import GAS_SPECIES
 from gqsim.errors import ProtocolError
 
@@ -205,7 +206,7 @@ def test_spin_dephasing_limit_equals_the_early_time_analytic_threshold():
 def test_rule_of_thumb_estimate_is_reported_next_to_the_simulated_limit(demo):
     # the rule of thumb puts each body's rate at |omega|/2; the early-time analysis above shows the witness
     # needs |omega|/4 per body, so with one dominant linear source the estimate is twice the simulated limit
-    from gqsim.studies.decoherence import rule_of_thumb_limit
+    from gqsim.superposition import rule_of_thumb_limit
 
     estimate = rule_of_thumb_limit(demo, "pressure")
     limit = tolerable_limit(demo, "pressure")

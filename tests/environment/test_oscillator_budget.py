@@ -11,8 +11,9 @@ from scipy.constants import Boltzmann as k_B
 from scipy.constants import hbar
 
 from gqsim.physics.environment import rates
-from gqsim.studies.decoherence import (oscillator_noise_budget, simulate_with_environment, split_environment,
-                                      tolerable_limit)
+from gqsim.oscillators import decoherence_tally as oscillator_noise_budget
+from gqsim.protocol.reader import split_environment
+from gqsim.studies.decoherence import simulate_with_environment, tolerable_limit
 from gqsim.physics.environment.parameters import GAS_SPECIES
 from gqsim.errors import PhysicsError
 from gqsim.families import simulate

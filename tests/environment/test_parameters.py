@@ -5,7 +5,7 @@ import pytest
 from scipy.constants import atomic_mass
 
 from gqsim.physics.environment import Environment, Gas, Laser, Sphere, ThermalRadiation, environment_from_table
-from gqsim.studies.decoherence import split_environment
+from gqsim.protocol.reader import split_environment
 from gqsim.physics.environment.parameters import GAS_SPECIES, ExtraRate, schema_fragment, sphere_from_body_table
 from gqsim.physics.environment.sources import thermal_permittivity
 from gqsim.errors import PhysicsError, ProtocolError

@@ -7,7 +7,7 @@ import pytest
 
 import gqsim
 from scipy.constants import k, physical_constants
-from gqsim.studies.decoherence import _oscillator_bodies, oscillator_channel_table
+from gqsim.oscillators.environment import oscillator_bodies as _oscillator_bodies, oscillator_channel_table
 
 DEMO = Path(__file__).resolve().parents[2] / "protocols" / "brackenfold-gas.toml"
 

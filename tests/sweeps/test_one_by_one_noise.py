@@ -3,7 +3,7 @@
 
 import numpy as np
 
-from gqsim.studies.decoherence import dominant_source
+from gqsim.physics.environment.tally import dominant_source
 from gqsim.studies.surveys import run_sweep
 
 from .helpers import small_sweep

@@ -30,7 +30,7 @@ import numpy as np
 from scipy.constants import Boltzmann as k_B
 from scipy.constants import hbar
 
-from gqsim.superposition.channels import ConstantDephasing, SeparationSquaredDephasing
+from gqsim.physics.decoherence import ConstantDephasing, SeparationSquaredDephasing
 from gqsim.physics.environment import rates
 from gqsim.physics.environment.parameters import Environment, Sphere
 from gqsim.physics.environment.thermal_photons import ThermalPhotonDephasing

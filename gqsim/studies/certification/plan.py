@@ -508,22 +508,9 @@ def oscillator_covariances(protocol, result=None) -> tuple[np.ndarray, np.ndarra
     ``result`` carries one; otherwise the exact Gaussian engine of :mod:`gqsim.oscillators`
     is run. One mode is kept per side.
     """
-    from gqsim.oscillators import measures as osc_measures
-    from gqsim.oscillators.channels import build_channels
-    from gqsim.oscillators.solve_moments import evolve_gaussian
-    from gqsim.oscillators.run import _sides, build
+    from gqsim.oscillators import pair_covariances
 
-    model = build(protocol)
-    side_a, side_b = _sides(model)
-    if len(side_a) != 1 or len(side_b) != 1:
-        raise PhysicsError("bodies", f"{len(side_a)} + {len(side_b)} modes",
-                           "the Duan plan needs exactly one mode on each side")
-    if result is not None and "covariance" in result.series:
-        covariances = np.asarray(result.series["covariance"])
-    else:
-        covariances = evolve_gaussian(model, build_channels(model)).covariances
-    modes = side_a + side_b
-    return osc_measures.reduce(covariances, modes), np.asarray(model.scales.length_m)[modes]
+    return pair_covariances(protocol, result)
 
 
 def plot_repetitions(report: CertificationReport, ax=None):

@@ -47,8 +47,8 @@ def evaluate_point(protocol: Protocol, figures: tuple = (), certification: Mappi
     ``confidence`` and ``overhead_s``). Raises the GqsimError of the failing stage for an
     invalid point (the runner records it).
     """
-    from gqsim.studies.decoherence import dominant_source
-    from gqsim.superposition.batched import first_near_max
+    from gqsim.physics.environment.tally import dominant_source
+    from gqsim.record import first_near_max
 
     protocol = _with_log_negativity(protocol)
     result = simulate(protocol)

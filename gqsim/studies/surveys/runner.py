@@ -27,7 +27,7 @@ from typing import Callable, Iterator
 import numpy as np
 
 from gqsim.errors import GqsimError, ProtocolError
-from gqsim.superposition import batched
+from gqsim import superposition as batched
 from gqsim.studies.surveys.one_by_one import safe_evaluate
 from gqsim.studies.surveys.spec import NOISE_LABEL_WIDTH, Axis, Execution, SweepSpec, point_protocol
 from gqsim.studies.surveys.storage import DONE, FAILED, MESSAGE_WIDTH, SweepStore, open_sweep
@@ -39,10 +39,19 @@ SCHEDULER_TIMEOUT_S = 5
 _THREAD_VARIABLES = ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS", "NUMBA_NUM_THREADS")
 
 
+def batched_support(spec: SweepSpec) -> tuple[bool, str]:
+    """Whether the family's array route can run ``spec`` exactly; returns (ok, reason if not)."""
+    if spec.base.family == "oscillators":
+        from gqsim.oscillators import gaussian_support
+
+        return gaussian_support(spec)
+    return batched.batched_support(spec)
+
+
 def resolve_route(spec: SweepSpec, requested: str | None = None) -> str:
     """``batched`` or ``one_by_one`` for ``spec`` (``auto`` picks batched when it applies)."""
     requested = requested or spec.execution.route
-    ok, reason = batched.batched_support(spec)
+    ok, reason = batched_support(spec)
     if requested == "auto":
         return "batched" if ok else "one_by_one"
     if requested == "batched" and not ok:
@@ -101,7 +110,7 @@ def compute_points(spec: SweepSpec, route: str, points: np.ndarray) -> tuple[dic
     status = np.full(n, DONE, dtype=np.int8)
     messages = np.full(n, "", dtype=f"<U{MESSAGE_WIDTH}")
     if route == "batched" and spec.base.family == "oscillators":
-        from gqsim.oscillators.batched import evaluate_gaussian_points
+        from gqsim.oscillators import evaluate_gaussian_points
 
         values, mask = evaluate_gaussian_points(spec, points)
         for name in spec.figures:

@@ -39,7 +39,9 @@ import jsonschema
 import numpy as np
 
 from gqsim.errors import ProtocolError
+from gqsim.protocol.keypaths import _native, get_path, set_path, split_path, with_values
 from gqsim.protocol.reader import Protocol, load_protocol, parse_protocol, read_schema_file, read_toml
+from gqsim.record import CERTIFICATION_FIGURES, DEFAULT_FIGURES, FIGURES, NOISE_LABEL_WIDTH
 
 __all__ = [
     "Axis",
@@ -58,34 +60,8 @@ SWEEP_VERSION = 1
 #: what the stored figures mean; a store written under another layout is refused, not mixed
 #: (2: ``dominant_noise`` holds the noise budget's source name instead of an index)
 STORE_LAYOUT = 2
-#: characters kept of a ``dominant_noise`` source name (fixed-width text in the store)
-NOISE_LABEL_WIDTH = 64
 
-#: figure name -> (unit, description)
-FIGURES: dict[str, tuple[str, str]] = {
-    "max_log_negativity": ("protocol log base", "largest log-negativity E_N over the time grid"),
-    "time_of_max_s": ("s", "grid time of the largest E_N"),
-    "entangled": ("1", "1 when E_N exceeds the numerical floor somewhere on the grid, else 0"),
-    "min_pt_eigenvalue": ("1", "smallest eigenvalue of the partial transpose over grid times t > 0; "
-                               "negative exactly when the grid shows entanglement (signed, for root finding)"),
-    "entangling_rate_rad_s": ("rad/s", "analytic entangling-phase rate while the branches are held"),
-    "dephasing_threshold_per_s": ("1/s", "|rate|/2: a per-body constant dephasing rate above this "
-                                         "prevents entanglement (shared physics references §1.8)"),
-    "dominant_noise": ("", "source with the largest rate in the point's noise budget (gqsim.studies.decoherence: "
-                           "coherence decay at full split for superpositions, heating for oscillators); "
-                           "'none' where nothing decoheres, '' where the point is not evaluated"),
-    "certification_time_s": ("s", "grid time at which certifying entanglement takes the least lab time "
-                                  "(optimal PPT witness for branches, Duan for oscillators; gqsim.studies.certification.plan); "
-                                  "NaN where the grid never certifies"),
-    "certification_repetitions": ("1", "total repetitions at that time; inf where never certifiable"),
-    "certification_lab_time_s": ("s", "repetitions x (time + overhead) at that time; inf where never certifiable"),
-}
-#: figures that need a measurement plan (one-by-one route only)
-CERTIFICATION_FIGURES = ("certification_time_s", "certification_repetitions", "certification_lab_time_s")
-DEFAULT_FIGURES = ("max_log_negativity", "time_of_max_s", "entangled", "min_pt_eigenvalue",
-                   "entangling_rate_rad_s", "dephasing_threshold_per_s", "dominant_noise")
 
-_TOKEN = re.compile(r"([A-Za-z_][A-Za-z0-9_]*)|\[(\d+|\*)\]")
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -192,88 +168,21 @@ class SweepSpec:
 
 # ----------------------------------------------------------------------------- key paths
 
-def split_path(path: str) -> list:
-    """``"bodies[*].mass_kg"`` -> ``["bodies", "*", "mass_kg"]`` (ints for list indices)."""
-    return list(_split_path(path))
 
 
-@functools.lru_cache(maxsize=256)
-def _split_path(path: str) -> tuple:
-    tokens: list = []
-    for part in path.split("."):
-        matched, first = 0, True
-        for m in _TOKEN.finditer(part):
-            name, index = m.groups()
-            if m.start() != matched or (first and name is None):
-                break
-            matched, first = m.end(), False
-            tokens.append(name if name is not None else ("*" if index == "*" else int(index)))
-        if not part or matched != len(part):
-            raise ProtocolError("path", path, "must look like table.key, list[2].key or list[*].key")
-    return tuple(tokens)
 
 
-def get_path(data: Mapping[str, Any], path: str) -> list:
-    """All values addressed by ``path`` (several with ``[*]``); raises ProtocolError if absent."""
-    nodes = [data]
-    for token in split_path(path):
-        nxt = []
-        for node in nodes:
-            if token == "*" and isinstance(node, (list, tuple)):
-                nxt.extend(node)
-            elif isinstance(token, int) and isinstance(node, (list, tuple)) and -len(node) <= token < len(node):
-                nxt.append(node[token])
-            elif isinstance(token, str) and token != "*" and isinstance(node, Mapping) and token in node:
-                nxt.append(node[token])
-            else:
-                raise ProtocolError("path", path, f"has no entry {token!r} in the protocol")
-        nodes = nxt
-    return nodes
 
 
-def set_path(data: dict, path: str, value: Any) -> None:
-    """Set ``value`` at ``path`` in place; missing tables and the last key are created (the
-    schema then judges them), list entries must exist."""
-    tokens = split_path(path)
-    parents = [data]
-    for token in tokens[:-1]:
-        nxt = []
-        for node in parents:
-            if token == "*" and isinstance(node, list):
-                nxt.extend(node)
-            elif isinstance(token, int) and isinstance(node, list) and -len(node) <= token < len(node):
-                nxt.append(node[token])
-            elif isinstance(token, str) and token != "*" and isinstance(node, dict):
-                nxt.append(node.setdefault(token, {}))  # a missing table is created; the schema judges it
-            else:
-                raise ProtocolError("path", path, f"has no table or list {token!r} in the base protocol")
-        parents = nxt
-    last = tokens[-1]
-    for node in parents:
-        if isinstance(node, dict) and isinstance(last, str) and last != "*":
-            node[last] = value
-        elif isinstance(node, list) and isinstance(last, int) and -len(node) <= last < len(node):
-            node[last] = value
-        else:
-            raise ProtocolError("path", path, "must end in a key of a table (e.g. .mass_kg)")
 
 
 def point_protocol(base: Protocol, values: Mapping[str, Any]) -> Protocol:
     """The base protocol with ``values`` (path -> value) applied, re-validated."""
-    data = base.to_dict()
-    for path, value in values.items():
-        set_path(data, path, _native(value))
-    return parse_protocol(data, source=f"{base.source} with {_describe(values)}")
+    return with_values(base, values)
 
 
-def _native(value: Any) -> Any:
-    if isinstance(value, np.generic):
-        return value.item()
-    return value
 
 
-def _describe(values: Mapping[str, Any]) -> str:
-    return ", ".join(f"{k}={_native(v)!r}" for k, v in values.items())
 
 
 # ----------------------------------------------------------------------------- reading
